@@ -1,0 +1,74 @@
+package report
+
+import (
+	"fmt"
+	"io"
+	"strings"
+	"text/tabwriter"
+)
+
+// WriteConsole writes the human-readable report of a run: what was solved, the key numbers per
+// body, wall and probe, the warnings and the caution.
+func WriteConsole(w io.Writer, s *Summary, outDir string) error {
+	var b strings.Builder
+	title := s.Title
+	if title == "" {
+		title = s.Name
+	}
+	fmt.Fprintf(&b, "%s  [%s]\n", title, s.Name)
+	fmt.Fprintf(&b, "  grid    %d × %d nodes, spacing %s m, %d unknowns\n", s.Grid.NX, s.Grid.NY, short(s.Grid.Spacing), s.Grid.Unknowns)
+	fmt.Fprintf(&b, "  solve   %s: %d solve(s), %d iterations in all, worst residual %.2g, %.2f s (+ %.2f s set-up)\n",
+		s.Solve.Method, s.Solve.Solves, s.Solve.Iterations, s.Solve.Residual, s.Solve.Seconds, s.Solve.SetupSeconds)
+	fmt.Fprintf(&b, "  flow    Q = %s m²/s, inlet %s m/s, outlet %s m/s, ½ρU² = %s Pa, peak %s m/s (Mach %.3f)\n",
+		short(s.Flow.Rate), short(s.Flow.InletSpeed), short(s.Flow.OutletSpeed), short(s.Flow.DynamicPressure),
+		short(s.Flow.MaxSpeed), s.Flow.MaxMach)
+	if s.Flow.PhiPsiMismatch != nil {
+		fmt.Fprintf(&b, "  check   |V(φ) − V(ψ)|/U ≤ %.2g away from walls\n", *s.Flow.PhiPsiMismatch)
+	}
+	b.WriteString("\n")
+	tw := tabwriter.NewWriter(&b, 0, 0, 2, ' ', tabwriter.AlignRight)
+	if len(s.Obstacles) > 0 {
+		fmt.Fprintln(tw, "body\tψ m²/s\tΓ m²/s\tV_max/U\tat x, y m\tCp_min\tFx N/m\tFy N/m\t−ρUΓ N/m\tcells across\t")
+		for _, o := range s.Obstacles {
+			fmt.Fprintf(tw, "%s\t%.5g\t%.4g\t%.4f\t%s\t%.4f\t%.3g\t%.4g\t%.4g\t%.0f\t\n", o.Name, o.Psi, o.Circulation,
+				o.MaxSpeed/s.Flow.InletSpeed, pair(o.MaxSpeedAt), o.MinCp, o.Force[0], o.Force[1], o.LiftKuttaJoukowski, o.CellsAcross)
+		}
+		fmt.Fprintln(tw, "\t\t\t\t\t\t\t\t\t\t")
+	}
+	fmt.Fprintln(tw, "wall\tCp_min\tat x, y m\tCp_max\tat x, y m\tmax dCp/dx 1/m\tat x m\t")
+	for _, wl := range s.Walls {
+		fmt.Fprintf(tw, "%s\t%.4f\t%s\t%.4f\t%s\t%.3g\t%.4g\t\n", wl.Name, wl.MinCp, pair(wl.MinCpAt), wl.MaxCp, pair(wl.MaxCpAt),
+			wl.MaxAdverseGradient, wl.MaxAdverseGradientAt[0])
+	}
+	if len(s.Probes) > 0 {
+		fmt.Fprintln(tw, "\t\t\t\t\t\t\t")
+		fmt.Fprintln(tw, "probe\tat x, y m\tu m/s\tv m/s\tspeed m/s\tCp\tp Pa\t")
+		for _, p := range s.Probes {
+			fmt.Fprintf(tw, "%s\t%s\t%.4g\t%.4g\t%.4g\t%.4f\t%.5g\t\n", p.Name, pair(p.At), p.U, p.V, p.Speed, p.Cp, p.Pressure)
+		}
+	}
+	if err := tw.Flush(); err != nil {
+		return err
+	}
+	if c := s.Cavitation; c != nil {
+		fmt.Fprintf(&b, "\ncavitation  σ = %.4g, lowest Cp %.4f on %s at %s, margin σ + Cp_min = %.4g\n", c.Sigma, c.MinCp, c.MinCpOn, pair(c.MinCpAt), c.Margin)
+	}
+	if len(s.Warnings) > 0 {
+		b.WriteString("\nwarnings\n")
+		for _, m := range s.Warnings {
+			fmt.Fprintf(&b, "  ! %s\n", m)
+		}
+	}
+	if outDir != "" {
+		fmt.Fprintf(&b, "\noutputs in %s\n", outDir)
+	}
+	b.WriteString("\ncaution: ")
+	b.WriteString(Caution)
+	b.WriteString("\n")
+	_, err := io.WriteString(w, b.String())
+	return err
+}
+
+func short(v float64) string { return fmt.Sprintf("%.4g", v) }
+
+func pair(p Point) string { return fmt.Sprintf("%.4g, %.4g", p[0], p[1]) }

@@ -1,0 +1,223 @@
+package report
+
+import (
+	"fmt"
+	"math"
+	"time"
+
+	"phipsi/cmd/internal/scenario"
+	"phipsi/mesh"
+	"phipsi/solver/flow"
+)
+
+// Caution is the warning every report carries.
+const Caution = "Ideal (potential) flow: no viscosity, boundary layers, separation, wakes, free-surface " +
+	"or cavitation damage are modelled, and a closed body feels no drag. Treat these numbers as a " +
+	"screening aid; defer to local codes, validated analysis, model tests and licensed engineers " +
+	"wherever people or property are at risk."
+
+// Summary is the content of summary.json. Its keys are a contract: add, never rename.
+type Summary struct {
+	Name       string          `json:"name"`
+	Title      string          `json:"title"`
+	Version    string          `json:"version"`
+	Grid       GridInfo        `json:"grid"`
+	Solve      SolveInfo       `json:"solve"`
+	Flow       FlowInfo        `json:"flow"`
+	Obstacles  []ObstacleInfo  `json:"obstacles"`
+	Walls      []WallInfo      `json:"walls"`
+	Probes     []ProbeInfo     `json:"probes"`
+	Cavitation *CavitationInfo `json:"cavitation,omitempty"`
+	Warnings   []string        `json:"warnings"`
+	Caution    string          `json:"caution"`
+}
+
+// GridInfo describes the grid.
+type GridInfo struct {
+	NX       int     `json:"nx"`
+	NY       int     `json:"ny"`
+	Spacing  float64 `json:"spacing"`
+	Unknowns int     `json:"unknowns"`
+	Cells    int     `json:"cells"`
+}
+
+// SolveInfo describes the linear solves.
+type SolveInfo struct {
+	Method       string  `json:"method"`
+	Solves       int     `json:"solves"`
+	Iterations   int     `json:"iterations"` // total over all solves
+	Residual     float64 `json:"residual"`   // largest final relative residual of any solve
+	Seconds      float64 `json:"seconds"`
+	SetupSeconds float64 `json:"setup_seconds"`
+}
+
+// FlowInfo holds the channel-wide numbers.
+type FlowInfo struct {
+	Rate            float64  `json:"rate"`
+	InletSpeed      float64  `json:"inlet_speed"`
+	OutletSpeed     float64  `json:"outlet_speed"`
+	DynamicPressure float64  `json:"dynamic_pressure"`
+	PhiPsiMismatch  *float64 `json:"phi_psi_mismatch"`
+	MaxSpeed        float64  `json:"max_speed"`
+	MaxSpeedAt      Point    `json:"max_speed_at"`
+	MaxMach         float64  `json:"max_mach"`
+}
+
+// Point is an [x, y] pair in metres.
+type Point [2]float64
+
+func pt(p mesh.Point) Point { return Point{p.X, p.Y} }
+
+// ObstacleInfo holds one body's numbers.
+type ObstacleInfo struct {
+	Name               string  `json:"name"`
+	Psi                float64 `json:"psi"`
+	Circulation        float64 `json:"circulation"`
+	MaxSpeed           float64 `json:"max_speed"`
+	MaxSpeedAt         Point   `json:"max_speed_at"`
+	MinCp              float64 `json:"min_cp"`
+	MinCpAt            Point   `json:"min_cp_at"`
+	Force              Point   `json:"force"`
+	LiftKuttaJoukowski float64 `json:"lift_kutta_joukowski"`
+	StagnationPoints   []Point `json:"stagnation_points"`
+	CellsAcross        float64 `json:"cells_across"`
+}
+
+// WallInfo holds one wall's numbers.
+type WallInfo struct {
+	Name                 string  `json:"name"`
+	MinCp                float64 `json:"min_cp"`
+	MinCpAt              Point   `json:"min_cp_at"`
+	MaxCp                float64 `json:"max_cp"`
+	MaxCpAt              Point   `json:"max_cp_at"`
+	MaxAdverseGradient   float64 `json:"max_adverse_gradient"`
+	MaxAdverseGradientAt Point   `json:"max_adverse_gradient_at"`
+}
+
+// ProbeInfo holds the flow at one probe.
+type ProbeInfo struct {
+	Name     string  `json:"name"`
+	At       Point   `json:"at"`
+	U        float64 `json:"u"`
+	V        float64 `json:"v"`
+	Speed    float64 `json:"speed"`
+	Pressure float64 `json:"pressure"`
+	Cp       float64 `json:"cp"`
+}
+
+// CavitationInfo is the cavitation check.
+type CavitationInfo struct {
+	Sigma   float64 `json:"sigma"`
+	MinCp   float64 `json:"min_cp"`
+	MinCpAt Point   `json:"min_cp_at"`
+	MinCpOn string  `json:"min_cp_on"`
+	Margin  float64 `json:"margin"`
+}
+
+// Input is what a summary is made from.
+type Input struct {
+	Version  string
+	Scenario *scenario.Scenario
+	Method   string
+	Result   *flow.Result
+	Probes   []flow.ProbeValue
+	Mismatch *float64
+	Elapsed  time.Duration
+}
+
+// NewSummary gathers the numbers of a run and the warnings they call for.
+func NewSummary(in Input) (*Summary, error) {
+	r := in.Result
+	sol := r.Sol
+	sys := sol.Sys
+	m := sys.Mesh
+	sc := in.Scenario
+	s := &Summary{Name: sc.Name, Title: sc.Title, Version: in.Version, Caution: Caution,
+		Obstacles: []ObstacleInfo{}, Walls: []WallInfo{}, Probes: []ProbeInfo{}, Warnings: []string{}}
+	s.Grid = GridInfo{NX: m.NX, NY: m.NY, Spacing: m.H, Unknowns: len(sys.Nodes), Cells: m.Cells()}
+	s.Solve = SolveInfo{Method: in.Method, Solves: len(sol.Solves), Seconds: sol.Solve.Seconds(), SetupSeconds: sol.Setup.Seconds()}
+	for _, st := range sol.Solves {
+		s.Solve.Iterations += st.Iterations
+		s.Solve.Residual = math.Max(s.Solve.Residual, st.Residual)
+	}
+	geo := m.Geom
+	outH := geo.Upper.Y(geo.Length) - geo.Lower.Y(geo.Length)
+	vmax, vat := r.MaxFieldSpeed()
+	for i := range r.Surfaces {
+		e := r.Surfaces[i].MaxSpeed(r.Surfaces[i].Boundary >= 2)
+		if e.Value > vmax {
+			vmax, vat = e.Value, e.At
+		}
+	}
+	s.Flow = FlowInfo{Rate: r.Q, InletSpeed: r.Speed, OutletSpeed: r.Q / outH, DynamicPressure: r.Q2(),
+		PhiPsiMismatch: in.Mismatch, MaxSpeed: vmax, MaxSpeedAt: pt(vat), MaxMach: vmax / sc.Fluid.SoundSpeed}
+	for k := range geo.Bodies {
+		b := r.Body(k)
+		info := ObstacleInfo{Name: b.Name, Psi: b.Psi, Circulation: b.Circulation,
+			MaxSpeed: b.MaxSpeed.Value, MaxSpeedAt: pt(b.MaxSpeed.At), MinCp: b.MinCp.Value, MinCpAt: pt(b.MinCp.At),
+			Force: Point(b.Force), LiftKuttaJoukowski: -r.Fluid.Density * r.Speed * b.Circulation,
+			StagnationPoints: []Point{}, CellsAcross: b.CellsAcross}
+		for _, p := range b.Stagnation {
+			info.StagnationPoints = append(info.StagnationPoints, pt(p))
+		}
+		s.Obstacles = append(s.Obstacles, info)
+		if b.CellsAcross < 20 {
+			s.warnf("obstacle %q spans only %.1f cells across (fewer than 20): refine the grid before trusting its peak speed", b.Name, b.CellsAcross)
+		}
+	}
+	for _, id := range []int{mesh.LowerWall, mesh.UpperWall} {
+		w := r.Wall(id)
+		s.Walls = append(s.Walls, WallInfo{Name: w.Name, MinCp: w.MinCp.Value, MinCpAt: pt(w.MinCp.At),
+			MaxCp: w.MaxCp.Value, MaxCpAt: pt(w.MaxCp.At), MaxAdverseGradient: w.MaxAdverseGradient,
+			MaxAdverseGradientAt: pt(w.MaxAdverseAt)})
+	}
+	for _, p := range in.Probes {
+		s.Probes = append(s.Probes, ProbeInfo{Name: p.Name, At: pt(p.At), U: p.U, V: p.V, Speed: p.Speed, Pressure: p.Pressure, Cp: p.Cp})
+	}
+	if s.Flow.MaxMach > 0.3 {
+		s.warnf("peak speed %.4g m/s is Mach %.2f (above 0.3, speed of sound %g m/s): compressibility is no longer negligible", vmax, s.Flow.MaxMach, sc.Fluid.SoundSpeed)
+	}
+	if sc.Fluid.HasVapourPressure {
+		e, on := r.MinCp()
+		sigma := (sc.Inflow.Pressure - sc.Fluid.VapourPressure) / r.Q2()
+		s.Cavitation = &CavitationInfo{Sigma: sigma, MinCp: e.Value, MinCpAt: pt(e.At), MinCpOn: on, Margin: sigma + e.Value}
+		if s.Cavitation.Margin < 0 {
+			s.warnf("cavitation margin σ + Cp_min = %.3g is negative (σ = %.3g, Cp_min = %.3g on %s): ideal flow predicts vapour at the surface", s.Cavitation.Margin, sigma, e.Value, on)
+		}
+	}
+	return s, s.check()
+}
+
+func (s *Summary) warnf(format string, args ...any) {
+	s.Warnings = append(s.Warnings, fmt.Sprintf(format, args...))
+}
+
+// check refuses a summary with a NaN or infinite number: such a result is an error, not an output.
+func (s *Summary) check() error {
+	bad := func(what string, v float64) error {
+		if math.IsNaN(v) || math.IsInf(v, 0) {
+			return fmt.Errorf("result is not finite: %s = %g", what, v)
+		}
+		return nil
+	}
+	vals := map[string]float64{"flow.max_speed": s.Flow.MaxSpeed, "solve.residual": s.Solve.Residual}
+	for _, o := range s.Obstacles {
+		for k, v := range map[string]float64{"psi": o.Psi, "circulation": o.Circulation, "max_speed": o.MaxSpeed,
+			"min_cp": o.MinCp, "force.x": o.Force[0], "force.y": o.Force[1]} {
+			vals[o.Name+"."+k] = v
+		}
+	}
+	for _, w := range s.Walls {
+		vals[w.Name+".min_cp"] = w.MinCp
+		vals[w.Name+".max_cp"] = w.MaxCp
+	}
+	for _, p := range s.Probes {
+		vals["probe."+p.Name+".speed"] = p.Speed
+	}
+	for k, v := range vals {
+		if err := bad(k, v); err != nil {
+			return err
+		}
+	}
+	return nil
+}

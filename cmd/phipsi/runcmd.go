@@ -1,0 +1,274 @@
+package main
+
+import (
+	"context"
+	"fmt"
+	"io"
+	"os"
+	"path/filepath"
+	"slices"
+	"strings"
+	"time"
+
+	"golang.org/x/term"
+
+	"phipsi/cmd/internal/report"
+	"phipsi/cmd/internal/scenario"
+	"phipsi/mesh"
+	"phipsi/solver"
+	"phipsi/solver/flow"
+)
+
+// runOptions are the flags of run and check.
+type runOptions struct {
+	out       string
+	spacing   float64
+	method    string
+	tolerance float64
+	quiet     bool
+	json      bool
+	maxMemory byteSize
+}
+
+// load reads the scenario, applies the overrides and plans the grid within the memory bound.
+func load(path string, o *runOptions) (*scenario.Plan, error) {
+	sc, err := scenario.Load(path)
+	if err != nil {
+		return nil, err
+	}
+	if o.method != "" {
+		if !slices.Contains(scenario.Methods(), o.method) {
+			return nil, &usageError{fmt.Sprintf("--method: must be one of %s, got %q", strings.Join(scenario.Methods(), ", "), o.method)}
+		}
+		sc.Solver.Method = o.method
+	}
+	if o.tolerance != 0 {
+		if !(o.tolerance > 0 && o.tolerance < scenario.MaxTolerance) {
+			return nil, &usageError{fmt.Sprintf("--tolerance: must be in (0, %g), got %g", scenario.MaxTolerance, o.tolerance)}
+		}
+		sc.Solver.Tolerance = o.tolerance
+	}
+	if o.spacing < 0 {
+		return nil, &usageError{fmt.Sprintf("--spacing: must be > 0, got %g", o.spacing)}
+	}
+	plan, err := sc.Plan(o.spacing)
+	if err != nil {
+		return nil, err
+	}
+	if plan.Memory > int64(o.maxMemory) {
+		key := "grid.spacing"
+		if sc.Grid.CellsAcross > 0 && o.spacing == 0 {
+			key = "grid.cells_across"
+		}
+		return nil, sc.Errorf(key, "a %d × %d grid needs an estimated %s, more than the limit of %s (--max-memory): use a coarser grid",
+			plan.Grid.NX, plan.Grid.NY, formatBytes(plan.Memory), formatBytes(int64(o.maxMemory)))
+	}
+	return plan, nil
+}
+
+func checkCmd(args []string, stdout, stderr io.Writer) error {
+	o := &runOptions{maxMemory: byteSize(defaultMaxMemory())}
+	fs := newFlags("check", "phipsi check SCENARIO.toml [--spacing H] [--max-memory SIZE]", stdout)
+	fs.Float64Var(&o.spacing, "spacing", 0, "grid spacing in metres, overriding the scenario's")
+	fs.Var(&o.maxMemory, "max-memory", "refuse a grid whose estimated memory exceeds this (default: half of physical memory)")
+	path, err := parse(fs, args)
+	if err != nil {
+		return err
+	}
+	plan, err := load(path, o)
+	if err != nil {
+		return err
+	}
+	g := plan.Grid
+	fmt.Fprintf(stdout, "%s: valid\n", path)
+	fmt.Fprintf(stdout, "  grid    %d × %d nodes (%d cells), spacing %.6g m\n", g.NX, g.NY, g.Cells(), g.H)
+	fmt.Fprintf(stdout, "  bodies  %d, probes %d\n", len(plan.Geom.Bodies), len(plan.Scenario.Probes))
+	fmt.Fprintf(stdout, "  memory  about %s (limit %s)\n", formatBytes(plan.Memory), formatBytes(int64(o.maxMemory)))
+	return nil
+}
+
+func runCmd(ctx context.Context, args []string, stdout, stderr io.Writer) error {
+	o := &runOptions{maxMemory: byteSize(defaultMaxMemory())}
+	fs := newFlags("run", "phipsi run SCENARIO.toml [flags]", stdout)
+	fs.StringVar(&o.out, "out", "", "output folder (default ./<name>-out)")
+	fs.Float64Var(&o.spacing, "spacing", 0, "grid spacing in metres, overriding the scenario's")
+	fs.StringVar(&o.method, "method", "", "linear solver: auto, mgcg, cg or sor (default: the scenario's)")
+	fs.Float64Var(&o.tolerance, "tolerance", 0, "relative residual to stop at (default: the scenario's)")
+	fs.BoolVar(&o.quiet, "quiet", false, "no progress line and no console report")
+	fs.BoolVar(&o.json, "json", false, "print summary.json to stdout instead of the console report")
+	fs.Var(&o.maxMemory, "max-memory", "refuse a grid whose estimated memory exceeds this (default: half of physical memory)")
+	path, err := parse(fs, args)
+	if err != nil {
+		return err
+	}
+	start := time.Now()
+	plan, err := load(path, o)
+	if err != nil {
+		return err
+	}
+	sc := plan.Scenario
+	m, set, err := plan.Build()
+	if err != nil {
+		return err
+	}
+	sys, err := solver.AssemblePsi(m, set)
+	if err != nil {
+		return err
+	}
+	settings := &solver.Settings{Tolerance: sc.Solver.Tolerance, MaxIterations: sc.Solver.MaxIterations}
+	prog := newProgress(stderr, o.quiet)
+	settings.Progress = prog.update
+	sol, err := solver.SolvePsi(ctx, sys, sc.Solver.Method, settings)
+	prog.done()
+	if err != nil {
+		return err
+	}
+	if err := ctx.Err(); err != nil {
+		return err
+	}
+	res, err := flow.Derive(sol, flow.Fluid{Density: sc.Fluid.Density, Pressure: sc.Inflow.Pressure})
+	if err != nil {
+		return err
+	}
+	var probes []flow.ProbeValue
+	for _, p := range sc.Probes {
+		v, err := res.Probe(p.Name, mesh.Point{X: p.At[0], Y: p.At[1]})
+		if err != nil {
+			return err
+		}
+		probes = append(probes, v)
+	}
+	sum, err := report.NewSummary(report.Input{Version: version, Scenario: sc, Method: methodName(sc.Solver.Method),
+		Result: res, Probes: probes, Elapsed: time.Since(start)})
+	if err != nil {
+		return err
+	}
+	out := o.out
+	if out == "" {
+		out = sc.Name + "-out"
+	}
+	if err := writeOutputs(ctx, out, sc, res, sum); err != nil {
+		return err
+	}
+	switch {
+	case o.json:
+		return report.WriteJSON(stdout, sum)
+	case o.quiet:
+		return nil
+	}
+	return report.WriteConsole(stdout, sum, out)
+}
+
+// methodName says what a scenario's method name means for the ψ problem.
+func methodName(m string) string {
+	switch m {
+	case solver.MethodSOR:
+		return "sor (red–black SOR)"
+	case solver.MethodMG:
+		return "mgcg (multigrid-preconditioned BiCGStab)"
+	}
+	return m + " (BiCGStab, Jacobi-preconditioned)"
+}
+
+// writeOutputs writes every output file atomically into dir.
+func writeOutputs(ctx context.Context, dir string, sc *scenario.Scenario, res *flow.Result, sum *report.Summary) error {
+	if err := os.MkdirAll(dir, 0o755); err != nil {
+		return fmt.Errorf("output folder: %w", err)
+	}
+	files := []struct {
+		name  string
+		write func(io.Writer) error
+	}{
+		{"summary.json", func(w io.Writer) error { return report.WriteJSON(w, sum) }},
+	}
+	for i := range res.Surfaces {
+		s := &res.Surfaces[i]
+		name := "surface-" + s.Name + ".csv"
+		if s.Boundary < 2 {
+			name = "wall-" + s.Name + ".csv"
+		}
+		files = append(files, struct {
+			name  string
+			write func(io.Writer) error
+		}{name, func(w io.Writer) error { return report.WriteSurfaceCSV(w, s) }})
+	}
+	if sc.Output.FieldCSV {
+		files = append(files, struct {
+			name  string
+			write func(io.Writer) error
+		}{"field.csv", func(w io.Writer) error { return report.WriteFieldCSV(w, res, nil) }})
+	}
+	for _, f := range files {
+		if err := ctx.Err(); err != nil {
+			return err
+		}
+		if err := writeAtomic(filepath.Join(dir, f.name), f.write); err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
+// writeAtomic writes a file under a temporary name in the same folder and renames it into place,
+// so a reader never sees a half-written file and an interruption leaves none behind.
+func writeAtomic(path string, write func(io.Writer) error) (err error) {
+	tmp, err := os.CreateTemp(filepath.Dir(path), "."+filepath.Base(path)+".tmp-*")
+	if err != nil {
+		return fmt.Errorf("writing %s: %w", path, err)
+	}
+	defer func() {
+		if err != nil {
+			tmp.Close()
+			os.Remove(tmp.Name())
+		}
+	}()
+	if err = write(tmp); err != nil {
+		return fmt.Errorf("writing %s: %w", path, err)
+	}
+	if err = tmp.Close(); err != nil {
+		return fmt.Errorf("writing %s: %w", path, err)
+	}
+	if err = os.Rename(tmp.Name(), path); err != nil {
+		return fmt.Errorf("writing %s: %w", path, err)
+	}
+	return nil
+}
+
+// progress prints one updating line on a terminal during long solves.
+type progress struct {
+	w      io.Writer
+	on     bool
+	last   time.Time
+	solve  int
+	prevIt int
+	shown  bool
+}
+
+func newProgress(w io.Writer, quiet bool) *progress {
+	p := &progress{w: w}
+	if f, ok := w.(*os.File); ok && !quiet && term.IsTerminal(int(f.Fd())) {
+		p.on = true
+	}
+	return p
+}
+
+func (p *progress) update(iter int, residual float64) {
+	if !p.on {
+		return
+	}
+	if iter < p.prevIt {
+		p.solve++
+	}
+	p.prevIt = iter
+	if now := time.Now(); now.Sub(p.last) > 200*time.Millisecond {
+		p.last = now
+		fmt.Fprintf(p.w, "\rstream function, solve %d: iteration %d, residual %.2e   ", p.solve+1, iter, residual)
+		p.shown = true
+	}
+}
+
+func (p *progress) done() {
+	if p.shown {
+		fmt.Fprint(p.w, "\r\033[K")
+	}
+}

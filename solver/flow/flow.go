@@ -1,0 +1,204 @@
+package flow
+
+import (
+	"fmt"
+	"math"
+
+	"phipsi/mesh"
+	"phipsi/solver"
+)
+
+// Fluid holds the fluid properties and reference state of a run.
+type Fluid struct {
+	Density  float64 // ρ, kg/m³
+	Pressure float64 // static pressure at the inlet, p_ref, Pa
+}
+
+// Field holds nodal velocity and pressure. Values at non-fluid nodes are zero and carry no meaning
+// (Valid tells them apart).
+type Field struct {
+	Grid            mesh.Grid
+	Valid           []bool
+	U, V, Speed, Cp []float64
+	Pressure        []float64
+}
+
+// Surface is the distribution of speed and pressure along one wall or body.
+type Surface struct {
+	Name     string
+	Boundary int
+	Points   []SurfaceValue
+}
+
+// SurfaceValue is one sample of a surface distribution.
+type SurfaceValue struct {
+	mesh.SurfacePoint
+	// VT is the velocity along the surface's sample order (counter-clockwise around a body, +x
+	// along a wall): −∂ψ/∂n around bodies, where n points into the fluid, m/s.
+	VT       float64
+	Speed    float64 // |∂ψ/∂n|, m/s
+	Cp       float64 // 1 − (V/U)²
+	Pressure float64 // p_ref + ½ρ(U² − V²), Pa
+}
+
+// Result is everything derived from one ψ solution.
+type Result struct {
+	Sol      *solver.PsiSolution
+	Fluid    Fluid
+	Speed    float64 // U
+	Q        float64 // flow rate per unit depth, m²/s
+	Field    *Field
+	Surfaces []Surface // lower wall, upper wall, then bodies
+}
+
+// Derive computes the velocity field and the wall and body distributions of sol. Surfaces are
+// sampled at spacing ≤ H.
+func Derive(sol *solver.PsiSolution, fl Fluid) (*Result, error) {
+	sys := sol.Sys
+	m := sys.Mesh
+	r := &Result{Sol: sol, Fluid: fl, Speed: sys.BC.Speed, Q: sys.BC.Q}
+	r.Field = velocityField(sol, fl)
+	fit := newFitter(m, sol.Psi)
+	for id := range m.NumBoundaries() {
+		s, err := r.surface(fit, id)
+		if err != nil {
+			return nil, err
+		}
+		r.Surfaces = append(r.Surfaces, s)
+	}
+	return r, nil
+}
+
+// Q2 returns the dynamic pressure ½ρU².
+func (r *Result) Q2() float64 { return 0.5 * r.Fluid.Density * r.Speed * r.Speed }
+
+// Cp returns the pressure coefficient 1 − (V/U)² of a speed.
+func (r *Result) Cp(speed float64) float64 { return 1 - (speed/r.Speed)*(speed/r.Speed) }
+
+// Pressure returns Bernoulli's p = p_ref + ½ρ(U² − V²).
+func (r *Result) Pressure(speed float64) float64 {
+	return r.Fluid.Pressure + 0.5*r.Fluid.Density*(r.Speed*r.Speed-speed*speed)
+}
+
+// boundaryPsi returns the ψ value of a boundary in the solution.
+func boundaryPsi(sol *solver.PsiSolution, id int) float64 {
+	if id >= 2 {
+		return sol.BodyPsi[id-2]
+	}
+	return sol.Sys.BC.WallPsi(id)
+}
+
+// surface samples boundary id and fits ψ about every sample.
+func (r *Result) surface(fit *fitter, id int) (Surface, error) {
+	m := r.Sol.Sys.Mesh
+	h := m.Grid.H
+	psiB := boundaryPsi(r.Sol, id)
+	s := Surface{Name: m.BoundaryName(id), Boundary: id}
+	for _, sp := range m.Sample(id, h) {
+		if sp.P.X < 0 || sp.P.X > m.Geom.Length {
+			continue
+		}
+		eye := sp.P.Add(sp.N.Scale(1e-7 * h))
+		gx, gy, _, ok := fit.gradient(sp.P, true, psiB, eye)
+		if !ok {
+			continue // a sample in a corner no fluid node can see: nothing honest to report
+		}
+		dn := gx*sp.N.X + gy*sp.N.Y
+		vt := -dn
+		if id < 2 {
+			// Along a wall in +x order: the tangent is (n_y, −n_x) on the lower wall… both walls
+			// are sampled by increasing x, so take the velocity's component along (n_y, −n_x)
+			// for the lower wall and (−n_y, n_x) for the upper.
+			t := mesh.Point{X: sp.N.Y, Y: -sp.N.X}
+			if id == mesh.UpperWall {
+				t = t.Scale(-1)
+			}
+			vt = gy*t.X - gx*t.Y
+		}
+		speed := math.Abs(dn)
+		v := SurfaceValue{SurfacePoint: sp, VT: vt, Speed: speed, Cp: r.Cp(speed), Pressure: r.Pressure(speed)}
+		if !finite(v.Speed) || !finite(v.Pressure) {
+			return s, fmt.Errorf("flow: %s: speed at (%g, %g) is not finite", s.Name, sp.P.X, sp.P.Y)
+		}
+		s.Points = append(s.Points, v)
+	}
+	if len(s.Points) == 0 {
+		return s, fmt.Errorf("flow: %s: no surface point could be evaluated; refine the grid", s.Name)
+	}
+	return s, nil
+}
+
+func finite(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }
+
+// velocityField computes u = ∂ψ/∂y and v = −∂ψ/∂x at every fluid node with three-point
+// differences on the node's arms (second order on uneven arms), one-sided at the inlet, and
+// v = 0 on the outlet column (where ∂ψ/∂x = 0 is imposed).
+func velocityField(sol *solver.PsiSolution, fl Fluid) *Field {
+	sys := sol.Sys
+	m := sys.Mesh
+	g := m.Grid
+	n := g.Len()
+	f := &Field{Grid: g, Valid: make([]bool, n), U: make([]float64, n), V: make([]float64, n),
+		Speed: make([]float64, n), Cp: make([]float64, n), Pressure: make([]float64, n)}
+	U := sys.BC.Speed
+	psi := sol.Psi
+	h := g.H
+	// value returns ψ at the end of an arm of node k in direction d.
+	steps := [4][2]int{{1, 0}, {-1, 0}, {0, 1}, {0, -1}}
+	value := func(i, j, d int, a mesh.Arm) float64 {
+		if a.Boundary != mesh.NoBoundary {
+			return boundaryPsi(sol, a.Boundary)
+		}
+		return psi[g.Index(i+steps[d][0], j+steps[d][1])]
+	}
+	// deriv is the three-point derivative with arms hp (forward) and hm (backward):
+	// f′ ≈ [hm²(f₊ − f₀) + hp²(f₀ − f₋)] / (hp·hm·(hp + hm)).
+	deriv := func(f0, fp, fm, hp, hm float64) float64 {
+		const tiny = 1e-3 // an arm this short carries a pinned value: use the other side alone
+		switch {
+		case hm < tiny*h:
+			return (fp - f0) / hp
+		case hp < tiny*h:
+			return (f0 - fm) / hm
+		}
+		return (hm*hm*(fp-f0) + hp*hp*(f0-fm)) / (hp * hm * (hp + hm))
+	}
+	for j := 0; j < g.NY; j++ {
+		for i := 0; i < g.NX; i++ {
+			k := g.Index(i, j)
+			if !m.IsFluid(k) {
+				continue
+			}
+			arms, _ := m.Arms(k)
+			f0 := psi[k]
+			var dx float64
+			switch {
+			case i == 0:
+				// Inlet: one-sided second-order difference when two whole links are available.
+				e := arms[mesh.East]
+				k1 := g.Index(1, j)
+				if e.Boundary == mesh.NoBoundary && g.NX > 2 && m.IsFluid(g.Index(2, j)) {
+					if a1, _ := m.Arms(k1); a1[mesh.East].Boundary == mesh.NoBoundary {
+						dx = (-3*f0 + 4*psi[k1] - psi[g.Index(2, j)]) / (2 * h)
+						break
+					}
+				}
+				dx = (value(i, j, mesh.East, e) - f0) / (e.Theta * h)
+			case i == g.NX-1:
+				dx = 0
+			default:
+				e, w := arms[mesh.East], arms[mesh.West]
+				dx = deriv(f0, value(i, j, mesh.East, e), value(i, j, mesh.West, w), e.Theta*h, w.Theta*h)
+			}
+			nn, s := arms[mesh.North], arms[mesh.South]
+			dy := deriv(f0, value(i, j, mesh.North, nn), value(i, j, mesh.South, s), nn.Theta*h, s.Theta*h)
+			u, v := dy, -dx
+			sp := math.Hypot(u, v)
+			f.Valid[k] = true
+			f.U[k], f.V[k], f.Speed[k] = u, v, sp
+			f.Cp[k] = 1 - (sp/U)*(sp/U)
+			f.Pressure[k] = fl.Pressure + 0.5*fl.Density*(U*U-sp*sp)
+		}
+	}
+	return f
+}

@@ -1,0 +1,485 @@
+package solver
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"math"
+	"math/rand/v2"
+	"slices"
+	"testing"
+
+	"gonum.org/v1/gonum/mat"
+)
+
+// method is one way of solving a linear system, as the tests see it.
+type method struct {
+	name  string
+	solve func(ctx context.Context, p gridProblem, x []float64, s *Settings) (Stats, error)
+}
+
+var (
+	methodCG = method{"cg", func(ctx context.Context, p gridProblem, x []float64, s *Settings) (Stats, error) {
+		return CG(ctx, p.a, p.b, x, nil, s)
+	}}
+	methodPCG = method{"cg+jacobi", func(ctx context.Context, p gridProblem, x []float64, s *Settings) (Stats, error) {
+		return CG(ctx, p.a, p.b, x, NewJacobi(p.a), s)
+	}}
+	methodBiCGStab = method{"bicgstab", func(ctx context.Context, p gridProblem, x []float64, s *Settings) (Stats, error) {
+		return BiCGStab(ctx, p.a, p.b, x, nil, s)
+	}}
+	methodPBiCGStab = method{"bicgstab+jacobi", func(ctx context.Context, p gridProblem, x []float64, s *Settings) (Stats, error) {
+		return BiCGStab(ctx, p.a, p.b, x, NewJacobi(p.a), s)
+	}}
+	methodGS = method{"sor omega=1", func(ctx context.Context, p gridProblem, x []float64, s *Settings) (Stats, error) {
+		return (&SOR{Red: p.red, Black: p.black}).Solve(ctx, p.a, p.b, x, s)
+	}}
+	methodSOR = method{"sor omega=optimal", func(ctx context.Context, p gridProblem, x []float64, s *Settings) (Stats, error) {
+		return (&SOR{Omega: OptimalOmega(p.n, p.n), Red: p.red, Black: p.black}).Solve(ctx, p.a, p.b, x, s)
+	}}
+	symmetricMethods = []method{methodCG, methodPCG, methodBiCGStab, methodPBiCGStab, methodGS, methodSOR}
+	generalMethods   = []method{methodBiCGStab, methodPBiCGStab, methodGS, methodSOR}
+)
+
+// TestAgreesWithDenseSolve compares every applicable method with gonum's dense LU solve on small
+// matrices.
+func TestAgreesWithDenseSolve(t *testing.T) {
+	const (
+		// compareTol is the required agreement ‖x − x_dense‖/‖x_dense‖.
+		compareTol = 1e-10
+		// solveTol is the residual the iterations are asked for. The forward error is at most
+		// cond₂(A) times the relative residual, so solveTol·cond₂(A) ≤ compareTol is checked
+		// for every matrix before its solves are trusted.
+		solveTol = 1e-13
+	)
+	rng := rand.New(rand.NewPCG(7, 11))
+	withGrid := func(a *CSR, red, black []int32, n int) gridProblem {
+		return gridProblem{a: a, red: red, black: black, n: n}
+	}
+	lap := poisson5(9, func(x, y float64) float64 { return 0 }, func(x, y float64) float64 { return 0 })
+	gridSym, rs, bs := randomGrid(rng, 9, 7, true)
+	gridNonsym, rn, bn := randomGrid(rng, 8, 6, false)
+	tests := []struct {
+		name    string
+		p       gridProblem
+		methods []method
+	}{
+		{"laplacian 9x9 cells", lap, symmetricMethods},
+		{"random SPD grid M-matrix 9x7", withGrid(gridSym, rs, bs, 10), symmetricMethods},
+		{"random non-symmetric grid M-matrix 8x6", withGrid(gridNonsym, rn, bn, 9), generalMethods},
+		{"random SPD dense 30", gridProblem{a: randomDense(rng, 30, 0.3, true)}, []method{methodCG, methodPCG, methodBiCGStab, methodPBiCGStab}},
+		{"random non-symmetric dense 30", gridProblem{a: randomDense(rng, 30, 0.3, false)}, []method{methodBiCGStab, methodPBiCGStab}},
+		{"shortley-weller hole 12 cells", shortleyWeller(12), generalMethods},
+	}
+	for _, tt := range tests {
+		p := tt.p
+		n := p.a.N
+		p.b = randVec(rng, n)
+		d := toDense(p.a)
+		if c := mat.Cond(d, 2); c*solveTol > compareTol {
+			t.Fatalf("%s: cond₂ = %.3g is too large for solveTol %g to guarantee %g", tt.name, c, solveTol, compareTol)
+		}
+		var want mat.VecDense
+		if err := want.SolveVec(d, mat.NewVecDense(n, p.b)); err != nil {
+			t.Fatalf("%s: dense solve: %v", tt.name, err)
+		}
+		for _, m := range tt.methods {
+			t.Run(tt.name+"/"+m.name, func(t *testing.T) {
+				x := make([]float64, n)
+				st, err := m.solve(context.Background(), p, x, &Settings{Tolerance: solveTol})
+				if err != nil {
+					t.Fatalf("solve: %v (stats %+v)", err, st)
+				}
+				if got := relDiff(x, want.RawVector().Data); got > compareTol {
+					t.Errorf("relative difference from the dense solve: got %.3g, want <= %g (stats %+v)", got, compareTol, st)
+				}
+				// Stats.Residual must be the true residual. Summing b − A x in another order
+				// moves each entry by about ε‖A‖‖x‖, which is ~1e-16 relative to ‖b‖ here.
+				const residualNoise = 1e-15
+				if got := trueRelResidual(p.a, p.b, x); math.Abs(got-st.Residual) > residualNoise {
+					t.Errorf("Stats.Residual: got %.6g, want the true residual %.6g", st.Residual, got)
+				}
+				if !st.Converged || st.Residual > solveTol {
+					t.Errorf("Stats: got Converged %v Residual %.3g, want true and <= %g", st.Converged, st.Residual, solveTol)
+				}
+			})
+		}
+	}
+}
+
+// TestManufacturedSolutions solves stencil problems whose discrete solution is known exactly:
+// the 5-point stencil reproduces cubics (its truncation error involves fourth derivatives), the
+// Shortley-Weller scheme reproduces quadratics, upwind differences reproduce linear functions.
+func TestManufacturedSolutions(t *testing.T) {
+	const solveTol = 1e-12 // asked-for relative residual
+	// errFactor bounds ‖x − u‖/‖u‖ by errFactor·cond·solveTol; the factor 2 covers the rounding
+	// in forming b, which is of order cond·ε.
+	const errFactor = 2
+	cubic := func(x, y float64) float64 { return x*x*x - 3*x*y*y + x*x + y*y } // −Δu = −4
+	minus4 := func(x, y float64) float64 { return -4 }
+	// laplaceCond is cond₂ of the 5-point Dirichlet Laplacian with n cells per side:
+	// eigenvalues 4 sin²(kπ/2n) + 4 sin²(lπ/2n), so cond = cot²(π/2n) (from memory; the
+	// eigenvalues of the model problem are in Saad 2003, ch. 2, and checked here by gonum on
+	// the small size).
+	laplaceCond := func(n int) float64 { c := 1 / math.Tan(math.Pi/float64(2*n)); return c * c }
+	tests := []struct {
+		name    string
+		p       gridProblem
+		cond    float64 // 0: compute with gonum
+		methods []method
+		long    bool
+	}{
+		{"poisson cubic 32 cells", poisson5(32, cubic, minus4), laplaceCond(32), symmetricMethods, false},
+		{"poisson cubic 128 cells", poisson5(128, cubic, minus4), laplaceCond(128), symmetricMethods, true},
+		{"convection-diffusion upwind 24 cells, cell Péclet 0.5", convectionDiffusion(24, 12, -6), 0, generalMethods, false},
+		{"shortley-weller hole 24 cells", shortleyWeller(24), 0, generalMethods, false},
+		{"shortley-weller hole 96 cells", shortleyWeller(96), 0, generalMethods, true},
+	}
+	small := poisson5(12, cubic, minus4)
+	if got, want := mat.Cond(toDense(small.a), 2), laplaceCond(12); math.Abs(got-want) > 1e-8*want {
+		t.Fatalf("cond₂ of the 12-cell Laplacian: got %.12g from gonum, want cot²(π/24) = %.12g", got, want)
+	}
+	for _, tt := range tests {
+		if tt.long && testing.Short() {
+			continue
+		}
+		cond := tt.cond
+		if cond == 0 {
+			cond = mat.Cond(toDense(tt.p.a), 2)
+		}
+		errTol := errFactor * cond * solveTol
+		for _, m := range tt.methods {
+			t.Run(tt.name+"/"+m.name, func(t *testing.T) {
+				x := make([]float64, tt.p.a.N)
+				st, err := m.solve(context.Background(), tt.p, x, &Settings{Tolerance: solveTol})
+				if err != nil {
+					t.Fatalf("solve: %v", err)
+				}
+				if got := relDiff(x, tt.p.exact); got > errTol {
+					t.Errorf("relative error from the exact discrete solution: got %.3g, want <= %.3g (cond %.3g, %d iterations)", got, errTol, cond, st.Iterations)
+				}
+				t.Logf("%d iterations, residual %.3g, restarts %d", st.Iterations, st.Residual, st.Restarts)
+			})
+		}
+	}
+}
+
+func TestNotConverged(t *testing.T) {
+	const maxIter = 3
+	p := poisson5(32, func(x, y float64) float64 { return x * y }, func(x, y float64) float64 { return 0 })
+	for _, m := range symmetricMethods {
+		t.Run(m.name, func(t *testing.T) {
+			x := make([]float64, p.a.N)
+			st, err := m.solve(context.Background(), p, x, &Settings{MaxIterations: maxIter})
+			if !errors.Is(err, ErrNotConverged) {
+				t.Fatalf("error: got %v, want ErrNotConverged", err)
+			}
+			if st.Iterations != maxIter || st.Converged {
+				t.Errorf("Stats: got Iterations %d Converged %v, want %d false", st.Iterations, st.Converged, maxIter)
+			}
+			want := trueRelResidual(p.a, p.b, x)
+			// The reported residual is recomputed from b − A x: equal up to rounding.
+			if math.Abs(st.Residual-want) > 1e-12*want || !(want > DefaultTolerance) {
+				t.Errorf("Stats.Residual: got %.12g, want the true residual %.12g (above the tolerance)", st.Residual, want)
+			}
+		})
+	}
+}
+
+func TestCancelledContext(t *testing.T) {
+	p := poisson5(64, func(x, y float64) float64 { return x * y }, func(x, y float64) float64 { return 0 })
+	t.Run("before the solve", func(t *testing.T) {
+		ctx, cancel := context.WithCancel(context.Background())
+		cancel()
+		for _, m := range symmetricMethods {
+			x := make([]float64, p.a.N)
+			st, err := m.solve(ctx, p, x, nil)
+			if !errors.Is(err, context.Canceled) || st.Iterations != 0 {
+				t.Errorf("%s: got error %v after %d iterations, want context.Canceled after 0", m.name, err, st.Iterations)
+			}
+		}
+	})
+	t.Run("during the solve", func(t *testing.T) {
+		const cancelAt = 5
+		for _, m := range symmetricMethods {
+			ctx, cancel := context.WithCancel(context.Background())
+			s := &Settings{Progress: func(iter int, _ float64) {
+				if iter == cancelAt {
+					cancel()
+				}
+			}}
+			x := make([]float64, p.a.N)
+			st, err := m.solve(ctx, p, x, s)
+			cancel()
+			// The context is checked at the start of every iteration; SOR reports an
+			// iterate's residual during the next sweep, so it may run one sweep more.
+			if !errors.Is(err, context.Canceled) || st.Iterations > cancelAt+1 {
+				t.Errorf("%s: got error %v after %d iterations, want context.Canceled after <= %d", m.name, err, st.Iterations, cancelAt+1)
+			}
+			if want := trueRelResidual(p.a, p.b, x); math.Abs(st.Residual-want) > 1e-12*want {
+				t.Errorf("%s: Stats.Residual: got %.12g, want the true residual %.12g", m.name, st.Residual, want)
+			}
+		}
+	})
+}
+
+func TestSettings(t *testing.T) {
+	p := poisson5(16, func(x, y float64) float64 { return x - y }, func(x, y float64) float64 { return 1 })
+	for _, m := range symmetricMethods {
+		t.Run(m.name, func(t *testing.T) {
+			calls := 0
+			s := &Settings{Progress: func(int, float64) { calls++ }}
+			x := make([]float64, p.a.N)
+			st, err := m.solve(context.Background(), p, x, s)
+			if err != nil {
+				t.Fatalf("solve: %v", err)
+			}
+			if s.Tolerance != 0 || s.MaxIterations != 0 || s.Progress == nil {
+				t.Errorf("settings after the solve: got %+v, want the zero tolerance and limit unchanged", *s)
+			}
+			if st.Residual > DefaultTolerance {
+				t.Errorf("residual with default settings: got %.3g, want <= %g", st.Residual, DefaultTolerance)
+			}
+			if calls < st.Iterations-1 || calls > st.Iterations {
+				// SOR learns the residual of the last sweep from the next; the last one is
+				// reported when checked. Krylov methods report every iteration.
+				t.Errorf("Progress calls: got %d, want one per iteration (%d)", calls, st.Iterations)
+			}
+			// A nil *Settings means the defaults too.
+			y := make([]float64, p.a.N)
+			st2, err := m.solve(context.Background(), p, y, nil)
+			if err != nil || st2.Iterations != st.Iterations || !slices.Equal(x, y) {
+				t.Errorf("nil settings: got %d iterations, error %v, want %d and the same x", st2.Iterations, err, st.Iterations)
+			}
+		})
+	}
+	t.Run("invalid values panic", func(t *testing.T) {
+		x := make([]float64, p.a.N)
+		expectPanic(t, "Tolerance must be >= 0", func() { _, _ = CG(context.Background(), p.a, p.b, x, nil, &Settings{Tolerance: -1}) })
+		expectPanic(t, "MaxIterations must be >= 0", func() { _, _ = BiCGStab(context.Background(), p.a, p.b, x, nil, &Settings{MaxIterations: -2}) })
+		expectPanic(t, "len(b) = 3", func() { _, _ = CG(context.Background(), p.a, p.b[:3], x, nil, nil) })
+	})
+}
+
+func TestZeroRightHandSideAndExactGuess(t *testing.T) {
+	p := poisson5(8, func(x, y float64) float64 { return 0 }, func(x, y float64) float64 { return 0 })
+	exact := poisson5(8, func(x, y float64) float64 { return x*x - y*y }, func(x, y float64) float64 { return 0 })
+	for _, m := range symmetricMethods {
+		t.Run(m.name, func(t *testing.T) {
+			x := randVec(rand.New(rand.NewPCG(3, 4)), p.a.N)
+			st, err := m.solve(context.Background(), p, x, nil)
+			if err != nil || !st.Converged || st.Iterations != 0 || slices.ContainsFunc(x, func(v float64) bool { return v != 0 }) {
+				t.Errorf("b = 0: got error %v, stats %+v, x non-zero %v; want x = 0 at once", err, st, slices.ContainsFunc(x, func(v float64) bool { return v != 0 }))
+			}
+			x = slices.Clone(exact.exact)
+			st, err = m.solve(context.Background(), exact, x, nil)
+			if err != nil || !st.Converged || st.Iterations != 0 {
+				t.Errorf("exact initial guess: got error %v, stats %+v; want convergence with 0 iterations", err, st)
+			}
+		})
+	}
+}
+
+// opFunc is an Operator given by a function, hiding any concrete type.
+type opFunc struct {
+	n   int
+	mul func(dst, x []float64)
+}
+
+func (o opFunc) Len() int                  { return o.n }
+func (o opFunc) MulVecTo(dst, x []float64) { o.mul(dst, x) }
+
+// poisonAt returns an operator that multiplies by a but writes NaN into the result of its k-th
+// call (counting from 1).
+func poisonAt(a *CSR, k int) Operator {
+	calls := 0
+	return opFunc{a.N, func(dst, x []float64) {
+		a.MulVecTo(dst, x)
+		calls++
+		if calls == k {
+			dst[len(dst)/2] = math.NaN()
+		}
+	}}
+}
+
+// precFunc is a Preconditioner given by a function.
+type precFunc func(dst, r []float64) error
+
+func (f precFunc) PreconSolve(dst, r []float64) error { return f(dst, r) }
+
+func TestBreakdownsAreErrors(t *testing.T) {
+	p := poisson5(16, func(x, y float64) float64 { return x * y }, func(x, y float64) float64 { return 1 })
+	swap := &CSR{N: 2, RowPtr: []int{0, 1, 2}, Col: []int32{1, 0}, Val: []float64{1, 1}}
+	indefinite := &CSR{N: 2, RowPtr: []int{0, 1, 2}, Col: []int32{0, 1}, Val: []float64{1, -1}}
+	errPrecon := errors.New("preconditioner failed on purpose")
+	failing := precFunc(func(dst, r []float64) error { return errPrecon })
+	tests := []struct {
+		name  string
+		solve func(x []float64) (Stats, error)
+		a     *CSR
+		b     []float64
+		want  error
+	}{
+		{"cg on an indefinite matrix", func(x []float64) (Stats, error) {
+			return CG(context.Background(), indefinite, []float64{1, 1}, x, nil, nil)
+		}, indefinite, []float64{1, 1}, ErrBreakdown},
+		{"cg with NaN from the operator", func(x []float64) (Stats, error) {
+			return CG(context.Background(), poisonAt(p.a, 4), p.b, x, nil, nil)
+		}, p.a, p.b, ErrBreakdown},
+		{"cg with a failing preconditioner", func(x []float64) (Stats, error) {
+			return CG(context.Background(), p.a, p.b, x, failing, nil)
+		}, p.a, p.b, errPrecon},
+		// r̂ = r = (1, 0), A r = (0, 1): r̂·A r = 0 right after the start, which no restart
+		// can cure.
+		{"bicgstab on a permutation", func(x []float64) (Stats, error) {
+			return BiCGStab(context.Background(), swap, []float64{1, 0}, x, nil, nil)
+		}, swap, []float64{1, 0}, ErrBreakdown},
+		{"bicgstab with NaN from the operator", func(x []float64) (Stats, error) {
+			return BiCGStab(context.Background(), poisonAt(p.a, 6), p.b, x, nil, nil)
+		}, p.a, p.b, ErrBreakdown},
+		{"bicgstab with a failing preconditioner", func(x []float64) (Stats, error) {
+			return BiCGStab(context.Background(), p.a, p.b, x, failing, nil)
+		}, p.a, p.b, errPrecon},
+	}
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			x := make([]float64, len(tt.b))
+			st, err := tt.solve(x)
+			if !errors.Is(err, tt.want) {
+				t.Fatalf("error: got %v, want %v", err, tt.want)
+			}
+			if slices.ContainsFunc(x, func(v float64) bool { return !isFinite(v) }) {
+				t.Errorf("x has a non-finite entry after %v", err)
+			}
+			if st.Converged || !isFinite(st.Residual) {
+				t.Errorf("Stats: got Converged %v Residual %v, want false and finite", st.Converged, st.Residual)
+			}
+			if want := trueRelResidual(tt.a, tt.b, x); math.Abs(st.Residual-want) > 1e-12*want {
+				t.Errorf("Stats.Residual: got %.12g, want the true residual %.12g", st.Residual, want)
+			}
+		})
+	}
+}
+
+// TestBiCGStabIndefiniteNeverNaN runs BiCGStab on random indefinite tridiagonal matrices, where
+// breakdowns are common: a diagonal of mixed signs with small couplings, and a dominant skew part
+// (−1 below, +1 above the diagonal) with a small diagonal, on which BiCGStab often stalls.
+// Whatever the outcome, x and the residual must be finite, a reported convergence must be real,
+// and the restart path must have been taken somewhere (else the test is not testing it).
+func TestBiCGStabIndefiniteNeverNaN(t *testing.T) {
+	rng := rand.New(rand.NewPCG(5, 6))
+	restarts, converged := 0, 0
+	for trial := range 60 {
+		skew := trial%2 == 1
+		t.Run(fmt.Sprintf("trial %d skew %v", trial, skew), func(t *testing.T) {
+			n := 4 + rng.IntN(30)
+			bld := NewBuilder(n, 3*n)
+			for i := range n {
+				lower, diag, upper := 0.3*(2*rng.Float64()-1), float64(1+rng.IntN(3))*float64(1-2*(i%2)), 0.3*(2*rng.Float64()-1)
+				if skew {
+					lower, diag, upper = -1, 0.2*(2*rng.Float64()-1), 1
+				}
+				if i > 0 {
+					bld.Add(i-1, lower)
+				}
+				bld.Add(i, diag)
+				if i+1 < n {
+					bld.Add(i+1, upper)
+				}
+				bld.EndRow()
+			}
+			a := bld.CSR()
+			b := randVec(rng, n)
+			x := make([]float64, n)
+			st, err := BiCGStab(context.Background(), a, b, x, nil, &Settings{MaxIterations: 300})
+			restarts += st.Restarts
+			if err == nil {
+				converged++
+			}
+			if err != nil && !errors.Is(err, ErrBreakdown) && !errors.Is(err, ErrNotConverged) {
+				t.Fatalf("error: got %v, want nil, ErrBreakdown or ErrNotConverged", err)
+			}
+			if slices.ContainsFunc(x, func(v float64) bool { return !isFinite(v) }) || !isFinite(st.Residual) {
+				t.Fatalf("non-finite output: x %v, residual %v", x, st.Residual)
+			}
+			// Same computation in another order: equal up to rounding, relative to ‖b‖.
+			const residualNoise = 1e-13
+			if want := trueRelResidual(a, b, x); math.Abs(st.Residual-want) > residualNoise {
+				t.Errorf("Stats.Residual: got %.12g, want the true residual %.12g", st.Residual, want)
+			}
+			if st.Converged != (err == nil) || (st.Converged && st.Residual > DefaultTolerance) {
+				t.Errorf("got Converged %v, Residual %.3g, error %v: inconsistent", st.Converged, st.Residual, err)
+			}
+		})
+	}
+	if restarts == 0 || converged == 0 {
+		t.Errorf("over all trials: %d restarts and %d convergences, want both > 0 for the test to mean something", restarts, converged)
+	}
+	t.Logf("over all trials: %d restarts, %d converged", restarts, converged)
+}
+
+// TestNoAllocationPerIteration checks that a solve allocates the same whether it runs few or many
+// iterations: work vectors are allocated once per call.
+func TestNoAllocationPerIteration(t *testing.T) {
+	p := poisson5(32, func(x, y float64) float64 { return x * y }, func(x, y float64) float64 { return 0 })
+	jac := NewJacobi(p.a)
+	x := make([]float64, p.a.N)
+	solves := []struct {
+		name  string
+		solve func(maxIter int)
+	}{
+		{"cg", func(k int) { clear(x); _, _ = CG(context.Background(), p.a, p.b, x, nil, &Settings{MaxIterations: k}) }},
+		{"cg+jacobi", func(k int) { clear(x); _, _ = CG(context.Background(), p.a, p.b, x, jac, &Settings{MaxIterations: k}) }},
+		{"bicgstab", func(k int) {
+			clear(x)
+			_, _ = BiCGStab(context.Background(), p.a, p.b, x, nil, &Settings{MaxIterations: k})
+		}},
+		{"bicgstab+jacobi", func(k int) {
+			clear(x)
+			_, _ = BiCGStab(context.Background(), p.a, p.b, x, jac, &Settings{MaxIterations: k})
+		}},
+		{"sor", func(k int) {
+			clear(x)
+			_, _ = (&SOR{Omega: 1.8, Red: p.red, Black: p.black}).Solve(context.Background(), p.a, p.b, x, &Settings{MaxIterations: k})
+		}},
+	}
+	for _, s := range solves {
+		t.Run(s.name, func(t *testing.T) {
+			few := testing.AllocsPerRun(3, func() { s.solve(2) })
+			many := testing.AllocsPerRun(3, func() { s.solve(40) })
+			if many != few {
+				t.Errorf("allocations: got %v for 40 iterations, want %v as for 2", many, few)
+			}
+		})
+	}
+}
+
+// TestGenericOperatorSameBits checks that the fused kernels used for a *CSR give bit-identical
+// results to the generic Operator path, as the code claims.
+func TestGenericOperatorSameBits(t *testing.T) {
+	lap := poisson5(40, func(x, y float64) float64 { return x * y }, func(x, y float64) float64 { return 1 })
+	sw := shortleyWeller(40)
+	tests := []struct {
+		name  string
+		p     gridProblem
+		solve func(a Operator, p gridProblem, x []float64) (Stats, error)
+	}{
+		{"cg on the laplacian", lap, func(a Operator, p gridProblem, x []float64) (Stats, error) {
+			return CG(context.Background(), a, p.b, x, nil, nil)
+		}},
+		{"bicgstab+jacobi on shortley-weller", sw, func(a Operator, p gridProblem, x []float64) (Stats, error) {
+			return BiCGStab(context.Background(), a, p.b, x, NewJacobi(p.a), nil)
+		}},
+	}
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			x1 := make([]float64, tt.p.a.N)
+			x2 := make([]float64, tt.p.a.N)
+			st1, err1 := tt.solve(tt.p.a, tt.p, x1)
+			st2, err2 := tt.solve(opFunc{tt.p.a.N, tt.p.a.MulVecTo}, tt.p, x2)
+			if err1 != nil || err2 != nil || st1 != st2 || !slices.Equal(x1, x2) {
+				t.Errorf("generic: %+v %v; *CSR: %+v %v; want identical stats and x", st2, err2, st1, err1)
+			}
+		})
+	}
+}

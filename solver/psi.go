@@ -1,0 +1,314 @@
+package solver
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"math"
+	"time"
+
+	"gonum.org/v1/gonum/mat"
+
+	"phipsi/bc"
+	"phipsi/mesh"
+)
+
+// PsiSystem is the discrete stream-function problem of one mesh and one set of boundary
+// conditions: A x = B0 + Σ_k C_k·BK[k], where x holds ψ at the unknown nodes and C_k is body k's
+// (yet unknown) constant ψ.
+//
+// Rows are the Shortley–Weller five-point Laplacian (Shortley & Weller, J. Appl. Phys. 9, 1938),
+// scaled by −H²: with arms θ_E, θ_W, θ_N, θ_S (fractions of H) to the neighbour or to the boundary,
+//
+//	−H²·∂²ψ/∂x² ≈ 2ψ₀/(θ_E θ_W) − 2ψ_E/(θ_E(θ_E+θ_W)) − 2ψ_W/(θ_W(θ_E+θ_W)),
+//
+// and likewise in y. The matrix is a non-symmetric M-matrix; its solution and wall gradients are
+// second order (Yoon & Min, J. Sci. Comput. 67, 2016). On the outlet column ∂ψ/∂x = 0 is imposed
+// by mirroring the west arm (ψ_E = ψ_W at the same distance). Inlet nodes are Dirichlet
+// (uniform inflow), pinned nodes take their boundary's value.
+type PsiSystem struct {
+	Mesh *mesh.Mesh
+	BC   *bc.Set
+	A    *CSR
+	// Unknown maps a node to its unknown index, −1 for a node whose ψ is known.
+	Unknown []int32
+	// Nodes maps an unknown index back to its node.
+	Nodes []int32
+	B0    []float64   // right-hand side with every body at ψ = 0
+	BK    [][]float64 // right-hand side of body k at ψ = 1 with everything else at 0
+	Red   []int32     // unknowns with i + j even
+	Black []int32     // unknowns with i + j odd
+}
+
+// AssemblePsi builds the ψ system of mesh m under conditions s.
+func AssemblePsi(m *mesh.Mesh, s *bc.Set) (*PsiSystem, error) {
+	g := m.Grid
+	nb := len(m.Geom.Bodies)
+	sys := &PsiSystem{Mesh: m, BC: s, Unknown: make([]int32, g.Len())}
+	for k := range sys.Unknown {
+		sys.Unknown[k] = -1
+	}
+	for j := 0; j < g.NY; j++ {
+		for i := 1; i < g.NX; i++ {
+			k := g.Index(i, j)
+			if m.Kind[k] == mesh.Fluid {
+				sys.Unknown[k] = int32(len(sys.Nodes))
+				sys.Nodes = append(sys.Nodes, int32(k))
+				if (i+j)%2 == 0 {
+					sys.Red = append(sys.Red, int32(len(sys.Nodes)-1))
+				} else {
+					sys.Black = append(sys.Black, int32(len(sys.Nodes)-1))
+				}
+			}
+		}
+	}
+	n := len(sys.Nodes)
+	if n == 0 {
+		return nil, fmt.Errorf("solver: the mesh has no fluid nodes")
+	}
+	sys.B0 = make([]float64, n)
+	sys.BK = make([][]float64, nb)
+	for b := range sys.BK {
+		sys.BK[b] = make([]float64, n)
+	}
+	bld := NewBuilder(n, 5*n)
+	for row, node := range sys.Nodes {
+		k := int(node)
+		i, j := k%g.NX, k/g.NX
+		arms, _ := m.Arms(k)
+		var c [4]float64
+		var diag float64
+		// x direction: the outlet column mirrors its west arm.
+		tE, tW := arms[mesh.East].Theta, arms[mesh.West].Theta
+		if i == g.NX-1 {
+			c[mesh.West] = 2 / (tW * tW)
+			diag += 2 / (tW * tW)
+		} else {
+			c[mesh.East] = 2 / (tE * (tE + tW))
+			c[mesh.West] = 2 / (tW * (tE + tW))
+			diag += 2 / (tE * tW)
+		}
+		tN, tS := arms[mesh.North].Theta, arms[mesh.South].Theta
+		c[mesh.North] = 2 / (tN * (tN + tS))
+		c[mesh.South] = 2 / (tS * (tN + tS))
+		diag += 2 / (tN * tS)
+		bld.Add(row, diag)
+		steps := [4][2]int{{1, 0}, {-1, 0}, {0, 1}, {0, -1}}
+		for d := range 4 {
+			if c[d] == 0 {
+				continue
+			}
+			arm := arms[d]
+			if arm.Boundary != mesh.NoBoundary {
+				sys.addKnown(row, c[d], arm.Boundary)
+				continue
+			}
+			ni, nj := i+steps[d][0], j+steps[d][1]
+			nk := g.Index(ni, nj)
+			switch {
+			case sys.Unknown[nk] >= 0:
+				bld.Add(int(sys.Unknown[nk]), -c[d])
+			case m.Kind[nk] == mesh.Pinned:
+				sys.addKnown(row, c[d], int(m.Owner[nk]))
+			case ni == 0 && m.Kind[nk] == mesh.Fluid:
+				sys.B0[row] += c[d] * s.InletPsi(g.Y(nj))
+			default:
+				return nil, fmt.Errorf("solver: node (%d, %d) has a whole link to a node without a value", i, j)
+			}
+		}
+		bld.EndRow()
+	}
+	sys.A = bld.CSR()
+	return sys, nil
+}
+
+// addKnown moves the term c·ψ_boundary of a row to the right-hand side.
+func (sys *PsiSystem) addKnown(row int, c float64, boundary int) {
+	if boundary >= 2 {
+		sys.BK[boundary-2][row] += c
+		return
+	}
+	sys.B0[row] += c * sys.BC.WallPsi(boundary)
+}
+
+// PsiSolution is the solved stream function.
+type PsiSolution struct {
+	Sys *PsiSystem
+	// Psi holds ψ at every node: the solution at unknowns, the inflow profile at the inlet, the
+	// boundary's value at pinned, solid and outside nodes.
+	Psi []float64
+	// BodyPsi is each body's constant ψ and Circulation its circulation Γ (counter-clockwise
+	// positive, m²/s) measured on a closed staircase of regular links around it.
+	BodyPsi, Circulation []float64
+	// Solves records the 1 + K linear solves (all bodies at 0, then body k at 1).
+	Solves []Stats
+	// Setup is the time spent building preconditioners and contours, Solve that of the solves.
+	Setup, Solve time.Duration
+}
+
+// Method names accepted by SolvePsi.
+const (
+	MethodAuto   = "auto" // the best available: Jacobi-preconditioned Krylov for now
+	MethodKrylov = "cg"   // Jacobi-preconditioned Krylov: BiCGStab for ψ, CG for φ
+	MethodSOR    = "sor"  // red–black SOR with the optimal ω of the grid
+	MethodMG     = "mgcg" // multigrid-preconditioned Krylov
+)
+
+// ErrUnknownMethod is returned for a method name the solver does not know or does not have.
+var ErrUnknownMethod = errors.New("solver: unknown method")
+
+// Closure is one row of the small dense system that fixes the body constants: Σ_j Coef[j]·C_j = RHS.
+// CirculationRow and the Kutta rows produce them.
+type closure struct {
+	coef []float64
+	rhs  float64
+}
+
+// SolvePsi solves the ψ system: one solve with every body at ψ = 0, one per body at ψ = 1 (same
+// matrix, same preconditioner), then the body constants from one condition per body (given
+// circulation, or the Kutta condition) as a small dense system, and the combined field.
+func SolvePsi(ctx context.Context, sys *PsiSystem, method string, set *Settings) (*PsiSolution, error) {
+	m := sys.Mesh
+	nb := len(m.Geom.Bodies)
+	start := time.Now()
+	solve, err := sys.solverFor(method)
+	if err != nil {
+		return nil, err
+	}
+	contours := make([]contour, nb)
+	for b := range nb {
+		if contours[b], err = staircase(sys, b); err != nil {
+			return nil, err
+		}
+	}
+	sol := &PsiSolution{Sys: sys, Setup: time.Since(start)}
+	start = time.Now()
+	n := len(sys.Nodes)
+	x0 := make([]float64, n)
+	sys.initialGuess(x0)
+	st, err := solve(ctx, sys.B0, x0, set)
+	st.Method = method
+	sol.Solves = append(sol.Solves, st)
+	if err != nil {
+		return sol, fmt.Errorf("stream function (bodies at ψ = 0): %w", err)
+	}
+	xk := make([][]float64, nb)
+	for b := range nb {
+		xk[b] = make([]float64, n)
+		st, err := solve(ctx, sys.BK[b], xk[b], set)
+		sol.Solves = append(sol.Solves, st)
+		if err != nil {
+			return sol, fmt.Errorf("stream function (body %q at ψ = 1): %w", m.Geom.Bodies[b].Name, err)
+		}
+	}
+	sol.Solve = time.Since(start)
+
+	// Body constants: Γ_b(C) = Γ_b(ψ₀) + Σ_j C_j Γ_b(ψ_j), each linear in C.
+	sol.BodyPsi = make([]float64, nb)
+	if nb > 0 {
+		a := mat.NewDense(nb, nb, nil)
+		r := mat.NewVecDense(nb, nil)
+		for b := range nb {
+			row, rhs, err := sys.closureRow(b, contours[b], x0, xk)
+			if err != nil {
+				return sol, err
+			}
+			a.SetRow(b, row)
+			r.SetVec(b, rhs)
+		}
+		var c mat.VecDense
+		if err := c.SolveVec(a, r); err != nil {
+			return sol, fmt.Errorf("solver: body constants: %w", err)
+		}
+		for b := range nb {
+			sol.BodyPsi[b] = c.AtVec(b)
+			if !isFinite(sol.BodyPsi[b]) {
+				return sol, fmt.Errorf("solver: body %q: constant ψ is not finite", m.Geom.Bodies[b].Name)
+			}
+		}
+	}
+	x := x0
+	for b := range nb {
+		cb := sol.BodyPsi[b]
+		for q, v := range xk[b] {
+			x[q] += cb * v
+		}
+	}
+	sol.Psi = sys.expand(x, sol.BodyPsi)
+	sol.Circulation = make([]float64, nb)
+	for b := range nb {
+		sol.Circulation[b] = contours[b].circulation(sol.Psi)
+	}
+	return sol, nil
+}
+
+// closureRow returns body b's condition as a row of the constants' system.
+func (sys *PsiSystem) closureRow(b int, c contour, x0 []float64, xk [][]float64) ([]float64, float64, error) {
+	cond := sys.BC.Bodies[b]
+	if cond.Kutta {
+		return nil, 0, fmt.Errorf("solver: body %q: the Kutta condition is not available in this version", sys.Mesh.Geom.Bodies[b].Name)
+	}
+	row := make([]float64, len(xk))
+	for j := range xk {
+		row[j] = c.circulationOf(sys, xk[j])
+	}
+	return row, cond.Circulation - c.circulationOf(sys, x0), nil
+}
+
+// solverFor returns the linear solve of the chosen method.
+func (sys *PsiSystem) solverFor(method string) (func(ctx context.Context, b, x []float64, s *Settings) (Stats, error), error) {
+	switch method {
+	case MethodAuto, MethodKrylov, "":
+		jac := NewJacobi(sys.A)
+		return func(ctx context.Context, b, x []float64, s *Settings) (Stats, error) {
+			return BiCGStab(ctx, sys.A, b, x, jac, s)
+		}, nil
+	case MethodSOR:
+		g := sys.Mesh.Grid
+		sor := &SOR{Omega: OptimalOmega(g.NX, g.NY), Red: sys.Red, Black: sys.Black}
+		return func(ctx context.Context, b, x []float64, s *Settings) (Stats, error) {
+			return sor.Solve(ctx, sys.A, b, x, s)
+		}, nil
+	case MethodMG:
+		return nil, fmt.Errorf("%w %q: multigrid is not available in this version (use auto, cg or sor)", ErrUnknownMethod, method)
+	}
+	return nil, fmt.Errorf("%w %q (allowed: auto, mgcg, cg, sor)", ErrUnknownMethod, method)
+}
+
+// initialGuess fills x with ψ rising linearly between the walls at every x: exact for an empty
+// straight channel and close elsewhere.
+func (sys *PsiSystem) initialGuess(x []float64) {
+	g := sys.Mesh.Grid
+	geo := sys.Mesh.Geom
+	for q, node := range sys.Nodes {
+		i, j := int(node)%g.NX, int(node)/g.NX
+		xx := g.X(i)
+		lo, hi := geo.Lower.Y(xx), geo.Upper.Y(xx)
+		f := (g.Y(j) - lo) / (hi - lo)
+		x[q] = sys.BC.Q * math.Max(0, math.Min(1, f))
+	}
+}
+
+// expand returns ψ at every node from the unknowns x and the body constants.
+func (sys *PsiSystem) expand(x, bodyPsi []float64) []float64 {
+	m := sys.Mesh
+	g := m.Grid
+	psi := make([]float64, g.Len())
+	value := func(owner int) float64 {
+		if owner >= 2 {
+			return bodyPsi[owner-2]
+		}
+		return sys.BC.WallPsi(owner)
+	}
+	for k := range psi {
+		switch {
+		case sys.Unknown[k] >= 0:
+			psi[k] = x[sys.Unknown[k]]
+		case m.Kind[k] == mesh.Fluid: // inlet column
+			psi[k] = sys.BC.InletPsi(g.Y(k / g.NX))
+		default:
+			psi[k] = value(int(m.Owner[k]))
+		}
+	}
+	return psi
+}
