@@ -26,6 +26,14 @@ type Set struct {
 	Q             float64 // flow rate per unit depth, U·(InletHigh − InletLow), m²/s
 	Bodies        []Body
 	TrailingEdges []TrailingEdge // per body: the corner used by the Kutta condition (zero value otherwise)
+
+	// Outer, when set, replaces the channel conditions for verification against known
+	// solutions: the walls, the inlet and the outlet all take ψ = Outer(p) (an exact far field
+	// imposed on a box).
+	Outer func(p mesh.Point) float64
+	// Prescribed, when set, gives every body the boundary value ψ = Prescribed(p) instead of an
+	// unknown constant (manufactured solutions); the body conditions are then ignored.
+	Prescribed func(p mesh.Point) float64
 }
 
 // TrailingEdge is the sharp corner a Kutta condition applies at.
@@ -97,7 +105,8 @@ func trailingEdge(b mesh.Body, near *mesh.Point) (mesh.Corner, error) {
 // lower wall to Q on the upper.
 func (s *Set) InletPsi(y float64) float64 { return s.Speed * (y - s.InletLow) }
 
-// WallPsi returns ψ on wall id (mesh.LowerWall: 0, mesh.UpperWall: Q).
+// WallPsi returns ψ on wall id (mesh.LowerWall: 0, mesh.UpperWall: Q) in the channel
+// conditions (Outer unset).
 func (s *Set) WallPsi(id int) float64 {
 	switch id {
 	case mesh.LowerWall:

@@ -118,39 +118,46 @@ func (a *CSR) checkMul(name string, dst, x []float64) {
 	}
 }
 
-// mulVecRange computes dst[i] = Σ_k A_ik x_k for rows lo ≤ i < hi. Each row's column and value
-// slices are cut once so that the inner loop runs without bounds checks on them.
+// rowDot returns Σ_k vals_k x_{cols_k}, summed in k order: one row of A times x. vals must be at
+// least as long as cols; slicing it to len(cols) lets the compiler drop its bounds checks.
+func rowDot(cols []int32, vals, x []float64) float64 {
+	vals = vals[:len(cols)]
+	var s float64
+	for k, c := range cols {
+		s += vals[k] * x[c]
+	}
+	return s
+}
+
+// The row-range kernels below walk rows lo ≤ i < hi. Each takes the row ends RowPtr[lo+1:hi+1]
+// once and carries the row start along, so that the only bounds checks left in the loops are the
+// gathers x[c].
+
+// mulVecRange computes dst_i = (A x)_i for rows lo ≤ i < hi.
 func (a *CSR) mulVecRange(dst, x []float64, lo, hi int) {
-	rp := a.RowPtr[lo : hi+1]
+	ends := a.RowPtr[lo+1 : hi+1]
 	dst = dst[lo:hi]
-	for i := range dst {
-		cols := a.Col[rp[i]:rp[i+1]]
-		vals := a.Val[rp[i]:rp[i+1]]
-		vals = vals[:len(cols)]
-		var s float64
-		for k, c := range cols {
-			s += vals[k] * x[c]
-		}
-		dst[i] = s
+	dst = dst[:len(ends)]
+	start := a.RowPtr[lo]
+	for i, end := range ends {
+		dst[i] = rowDot(a.Col[start:end], a.Val[start:end], x)
+		start = end
 	}
 }
 
 // mulVecDotRange computes dst = A x on rows [lo, hi) as mulVecRange does and returns
 // Σ_{lo≤i<hi} y_i dst_i, summed in row order, so that it equals mulVecRange followed by dotRange.
 func (a *CSR) mulVecDotRange(dst, x, y []float64, lo, hi int) float64 {
-	rp := a.RowPtr[lo : hi+1]
+	ends := a.RowPtr[lo+1 : hi+1]
 	dst = dst[lo:hi]
+	dst = dst[:len(ends)]
 	y = y[lo:hi]
-	y = y[:len(dst)]
+	y = y[:len(ends)]
+	start := a.RowPtr[lo]
 	var d float64
-	for i := range dst {
-		cols := a.Col[rp[i]:rp[i+1]]
-		vals := a.Val[rp[i]:rp[i+1]]
-		vals = vals[:len(cols)]
-		var s float64
-		for k, c := range cols {
-			s += vals[k] * x[c]
-		}
+	for i, end := range ends {
+		s := rowDot(a.Col[start:end], a.Val[start:end], x)
+		start = end
 		dst[i] = s
 		d += y[i] * s
 	}
@@ -160,19 +167,16 @@ func (a *CSR) mulVecDotRange(dst, x, y []float64, lo, hi int) float64 {
 // mulVecDots2Range computes dst = A x on rows [lo, hi) and returns Σ y_i dst_i and Σ dst_i², both
 // summed in row order.
 func (a *CSR) mulVecDots2Range(dst, x, y []float64, lo, hi int) (float64, float64) {
-	rp := a.RowPtr[lo : hi+1]
+	ends := a.RowPtr[lo+1 : hi+1]
 	dst = dst[lo:hi]
+	dst = dst[:len(ends)]
 	y = y[lo:hi]
-	y = y[:len(dst)]
+	y = y[:len(ends)]
+	start := a.RowPtr[lo]
 	var dy, dd float64
-	for i := range dst {
-		cols := a.Col[rp[i]:rp[i+1]]
-		vals := a.Val[rp[i]:rp[i+1]]
-		vals = vals[:len(cols)]
-		var s float64
-		for k, c := range cols {
-			s += vals[k] * x[c]
-		}
+	for i, end := range ends {
+		s := rowDot(a.Col[start:end], a.Val[start:end], x)
+		start = end
 		dst[i] = s
 		dy += y[i] * s
 		dd += s * s
@@ -180,24 +184,20 @@ func (a *CSR) mulVecDots2Range(dst, x, y []float64, lo, hi int) (float64, float6
 	return dy, dd
 }
 
-// residualRange computes dst[i] = b_i − (A x)_i for rows lo ≤ i < hi and returns Σ dst_i². The
+// residualRange computes dst_i = b_i − (A x)_i for rows lo ≤ i < hi and returns Σ dst_i². The
 // product is summed first and then subtracted from b_i, so the result equals b − (A x) computed by
-// MulVecTo, bit for bit.
+// MulVecTo, bit for bit. dst may be b.
 func (a *CSR) residualRange(dst, b, x []float64, lo, hi int) float64 {
-	rp := a.RowPtr[lo : hi+1]
+	ends := a.RowPtr[lo+1 : hi+1]
 	dst = dst[lo:hi]
+	dst = dst[:len(ends)]
 	b = b[lo:hi]
-	b = b[:len(dst)]
+	b = b[:len(ends)]
+	start := a.RowPtr[lo]
 	var sq float64
-	for i := range dst {
-		cols := a.Col[rp[i]:rp[i+1]]
-		vals := a.Val[rp[i]:rp[i+1]]
-		vals = vals[:len(cols)]
-		var s float64
-		for k, c := range cols {
-			s += vals[k] * x[c]
-		}
-		ri := b[i] - s
+	for i, end := range ends {
+		ri := b[i] - rowDot(a.Col[start:end], a.Val[start:end], x)
+		start = end
 		dst[i] = ri
 		sq += ri * ri
 	}
@@ -207,18 +207,14 @@ func (a *CSR) residualRange(dst, b, x []float64, lo, hi int) float64 {
 // residualSqRange returns Σ_{lo≤i<hi} (b_i − (A x)_i)², computed as residualRange does but without
 // storing the residual.
 func (a *CSR) residualSqRange(b, x []float64, lo, hi int) float64 {
-	rp := a.RowPtr[lo : hi+1]
+	ends := a.RowPtr[lo+1 : hi+1]
 	b = b[lo:hi]
+	b = b[:len(ends)]
+	start := a.RowPtr[lo]
 	var sq float64
-	for i := range b {
-		cols := a.Col[rp[i]:rp[i+1]]
-		vals := a.Val[rp[i]:rp[i+1]]
-		vals = vals[:len(cols)]
-		var s float64
-		for k, c := range cols {
-			s += vals[k] * x[c]
-		}
-		ri := b[i] - s
+	for i, end := range ends {
+		ri := b[i] - rowDot(a.Col[start:end], a.Val[start:end], x)
+		start = end
 		sq += ri * ri
 	}
 	return sq

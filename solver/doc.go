@@ -29,8 +29,8 @@
 //     solves; its residual is not monotone, and it restarts itself after near-breakdowns.
 //   - SOR, red-black successive over-relaxation, as a simple method for either problem when the
 //     rows split into two colours that do not couple (5-point stencils; see RedBlack). With
-//     OptimalOmega its iteration count grows like 1/h, as unpreconditioned CG's does, at a lower
-//     cost per iteration and with no work vectors.
+//     OptimalOmega its iteration count grows like 1/h, as unpreconditioned CG's does; a sweep
+//     costs about one operator product and SOR needs a single work vector (the inverse diagonal).
 //
 // Without a good preconditioner all three need a number of iterations proportional to the grid
 // size per side; a multigrid preconditioner makes it nearly constant.

@@ -51,7 +51,7 @@ func AssemblePsi(m *mesh.Mesh, s *bc.Set) (*PsiSystem, error) {
 	for j := 0; j < g.NY; j++ {
 		for i := 1; i < g.NX; i++ {
 			k := g.Index(i, j)
-			if m.Kind[k] == mesh.Fluid {
+			if m.Kind[k] == mesh.Fluid && !(s.Outer != nil && i == g.NX-1) {
 				sys.Unknown[k] = int32(len(sys.Nodes))
 				sys.Nodes = append(sys.Nodes, int32(k))
 				if (i+j)%2 == 0 {
@@ -67,6 +67,9 @@ func AssemblePsi(m *mesh.Mesh, s *bc.Set) (*PsiSystem, error) {
 		return nil, fmt.Errorf("solver: the mesh has no fluid nodes")
 	}
 	sys.B0 = make([]float64, n)
+	if s.Prescribed != nil {
+		nb = 0
+	}
 	sys.BK = make([][]float64, nb)
 	for b := range sys.BK {
 		sys.BK[b] = make([]float64, n)
@@ -80,7 +83,7 @@ func AssemblePsi(m *mesh.Mesh, s *bc.Set) (*PsiSystem, error) {
 		var diag float64
 		// x direction: the outlet column mirrors its west arm.
 		tE, tW := arms[mesh.East].Theta, arms[mesh.West].Theta
-		if i == g.NX-1 {
+		if i == g.NX-1 && s.Outer == nil {
 			c[mesh.West] = 2 / (tW * tW)
 			diag += 2 / (tW * tW)
 		} else {
@@ -100,7 +103,8 @@ func AssemblePsi(m *mesh.Mesh, s *bc.Set) (*PsiSystem, error) {
 			}
 			arm := arms[d]
 			if arm.Boundary != mesh.NoBoundary {
-				sys.addKnown(row, c[d], arm.Boundary)
+				end := g.At(i, j).Add(mesh.Point{X: float64(steps[d][0]), Y: float64(steps[d][1])}.Scale(arm.Theta * g.H))
+				sys.addKnown(row, c[d], arm.Boundary, end)
 				continue
 			}
 			ni, nj := i+steps[d][0], j+steps[d][1]
@@ -109,9 +113,9 @@ func AssemblePsi(m *mesh.Mesh, s *bc.Set) (*PsiSystem, error) {
 			case sys.Unknown[nk] >= 0:
 				bld.Add(int(sys.Unknown[nk]), -c[d])
 			case m.Kind[nk] == mesh.Pinned:
-				sys.addKnown(row, c[d], int(m.Owner[nk]))
-			case ni == 0 && m.Kind[nk] == mesh.Fluid:
-				sys.B0[row] += c[d] * s.InletPsi(g.Y(nj))
+				sys.addKnown(row, c[d], int(m.Owner[nk]), g.At(ni, nj))
+			case m.Kind[nk] == mesh.Fluid: // an inlet node, or an outlet node under Outer
+				sys.B0[row] += c[d] * sys.knownNode(ni, nj)
 			default:
 				return nil, fmt.Errorf("solver: node (%d, %d) has a whole link to a node without a value", i, j)
 			}
@@ -122,13 +126,48 @@ func AssemblePsi(m *mesh.Mesh, s *bc.Set) (*PsiSystem, error) {
 	return sys, nil
 }
 
-// addKnown moves the term c·ψ_boundary of a row to the right-hand side.
-func (sys *PsiSystem) addKnown(row int, c float64, boundary int) {
-	if boundary >= 2 {
+// addKnown moves the term c·ψ of a boundary point p to the right-hand side: into the body's
+// own right-hand side when its ψ is an unknown constant, else with its known value.
+func (sys *PsiSystem) addKnown(row int, c float64, boundary int, p mesh.Point) {
+	if boundary >= 2 && sys.BC.Prescribed == nil {
 		sys.BK[boundary-2][row] += c
 		return
 	}
-	sys.B0[row] += c * sys.BC.WallPsi(boundary)
+	sys.B0[row] += c * sys.knownValue(boundary, p, 0)
+}
+
+// knownValue returns ψ at point p of a boundary, with bodyPsi the body's constant when it has one.
+func (sys *PsiSystem) knownValue(boundary int, p mesh.Point, bodyPsi float64) float64 {
+	s := sys.BC
+	switch {
+	case boundary >= 2 && s.Prescribed != nil:
+		return s.Prescribed(p)
+	case boundary >= 2:
+		return bodyPsi
+	case s.Outer != nil:
+		return s.Outer(p)
+	}
+	return s.WallPsi(boundary)
+}
+
+// knownNode returns ψ at a fluid node that is not an unknown: the inflow profile at the inlet,
+// or the outer data at the inlet and outlet under Outer.
+func (sys *PsiSystem) knownNode(i, j int) float64 {
+	g := sys.Mesh.Grid
+	if sys.BC.Outer != nil {
+		return sys.BC.Outer(g.At(i, j))
+	}
+	return sys.BC.InletPsi(g.Y(j))
+}
+
+// BoundaryValue returns the solved ψ at point p of boundary id (a wall's or body's constant, or
+// the prescribed data of a verification case).
+func (sol *PsiSolution) BoundaryValue(id int, p mesh.Point) float64 {
+	c := 0.0
+	if id >= 2 && id-2 < len(sol.BodyPsi) {
+		c = sol.BodyPsi[id-2]
+	}
+	return sol.Sys.knownValue(id, p, c)
 }
 
 // PsiSolution is the solved stream function.
@@ -169,14 +208,14 @@ type closure struct {
 // circulation, or the Kutta condition) as a small dense system, and the combined field.
 func SolvePsi(ctx context.Context, sys *PsiSystem, method string, set *Settings) (*PsiSolution, error) {
 	m := sys.Mesh
-	nb := len(m.Geom.Bodies)
+	nb := len(sys.BK)
 	start := time.Now()
 	solve, err := sys.solverFor(method)
 	if err != nil {
 		return nil, err
 	}
-	contours := make([]contour, nb)
-	for b := range nb {
+	contours := make([]contour, len(m.Geom.Bodies))
+	for b := range contours {
 		if contours[b], err = staircase(sys, b); err != nil {
 			return nil, err
 		}
@@ -235,8 +274,8 @@ func SolvePsi(ctx context.Context, sys *PsiSystem, method string, set *Settings)
 		}
 	}
 	sol.Psi = sys.expand(x, sol.BodyPsi)
-	sol.Circulation = make([]float64, nb)
-	for b := range nb {
+	sol.Circulation = make([]float64, len(m.Geom.Bodies))
+	for b := range sol.Circulation {
 		sol.Circulation[b] = contours[b].circulation(sol.Psi)
 	}
 	return sol, nil
@@ -265,7 +304,7 @@ func (sys *PsiSystem) solverFor(method string) (func(ctx context.Context, b, x [
 		}, nil
 	case MethodSOR:
 		g := sys.Mesh.Grid
-		sor := &SOR{Omega: OptimalOmega(g.NX, g.NY), Red: sys.Red, Black: sys.Black}
+		sor := &SOR{Omega: OptimalOmega(g.NX-1, g.NY-1), Red: sys.Red, Black: sys.Black}
 		return func(ctx context.Context, b, x []float64, s *Settings) (Stats, error) {
 			return sor.Solve(ctx, sys.A, b, x, s)
 		}, nil
@@ -294,20 +333,20 @@ func (sys *PsiSystem) expand(x, bodyPsi []float64) []float64 {
 	m := sys.Mesh
 	g := m.Grid
 	psi := make([]float64, g.Len())
-	value := func(owner int) float64 {
-		if owner >= 2 {
-			return bodyPsi[owner-2]
-		}
-		return sys.BC.WallPsi(owner)
-	}
 	for k := range psi {
+		i, j := k%g.NX, k/g.NX
 		switch {
 		case sys.Unknown[k] >= 0:
 			psi[k] = x[sys.Unknown[k]]
-		case m.Kind[k] == mesh.Fluid: // inlet column
-			psi[k] = sys.BC.InletPsi(g.Y(k / g.NX))
+		case m.Kind[k] == mesh.Fluid: // inlet column, or outlet under Outer
+			psi[k] = sys.knownNode(i, j)
 		default:
-			psi[k] = value(int(m.Owner[k]))
+			owner := int(m.Owner[k])
+			c := 0.0
+			if owner >= 2 && owner-2 < len(bodyPsi) {
+				c = bodyPsi[owner-2]
+			}
+			psi[k] = sys.knownValue(owner, g.At(i, j), c)
 		}
 	}
 	return psi

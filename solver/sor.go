@@ -172,14 +172,7 @@ func (a *CSR) sorRange(rows []int32, invDiag, b, x []float64, omega float64) flo
 	var sq float64
 	for _, i := range rows {
 		start, end := a.RowPtr[i], a.RowPtr[i+1]
-		cols := a.Col[start:end]
-		vals := a.Val[start:end]
-		vals = vals[:len(cols)]
-		var s float64
-		for k, c := range cols {
-			s += vals[k] * x[c]
-		}
-		ri := b[i] - s
+		ri := b[i] - rowDot(a.Col[start:end], a.Val[start:end], x)
 		sq += ri * ri
 		x[i] += omega * ri * invDiag[i]
 	}
@@ -197,8 +190,11 @@ func OptimalOmega(nx, ny int) float64 {
 	if nx < 2 || ny < 2 {
 		panic(fmt.Sprintf("solver: OptimalOmega: nx and ny must be >= 2, got %d and %d", nx, ny))
 	}
-	rho := (math.Cos(math.Pi/float64(nx)) + math.Cos(math.Pi/float64(ny))) / 2
-	return 2 / (1 + math.Sqrt(1-rho*rho))
+	// 1 − ρ_J = sin²(π/2nx) + sin²(π/2ny), free of the cancellation in 1 − cos for large grids;
+	// then 1 − ρ_J² = (1 − ρ_J)(1 + ρ_J).
+	sx, sy := math.Sin(math.Pi/float64(2*nx)), math.Sin(math.Pi/float64(2*ny))
+	oneMinus := sx*sx + sy*sy
+	return 2 / (1 + math.Sqrt(oneMinus*(2-oneMinus)))
 }
 
 // RedBlack splits the rows of a into two colours such that no entry A_ij ≠ 0 with i ≠ j joins

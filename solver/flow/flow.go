@@ -80,26 +80,17 @@ func (r *Result) Pressure(speed float64) float64 {
 	return r.Fluid.Pressure + 0.5*r.Fluid.Density*(r.Speed*r.Speed-speed*speed)
 }
 
-// boundaryPsi returns the ψ value of a boundary in the solution.
-func boundaryPsi(sol *solver.PsiSolution, id int) float64 {
-	if id >= 2 {
-		return sol.BodyPsi[id-2]
-	}
-	return sol.Sys.BC.WallPsi(id)
-}
-
 // surface samples boundary id and fits ψ about every sample.
 func (r *Result) surface(fit *fitter, id int) (Surface, error) {
 	m := r.Sol.Sys.Mesh
 	h := m.Grid.H
-	psiB := boundaryPsi(r.Sol, id)
 	s := Surface{Name: m.BoundaryName(id), Boundary: id}
 	for _, sp := range m.Sample(id, h) {
 		if sp.P.X < 0 || sp.P.X > m.Geom.Length {
 			continue
 		}
 		eye := sp.P.Add(sp.N.Scale(1e-7 * h))
-		gx, gy, _, ok := fit.gradient(sp.P, true, psiB, eye)
+		gx, gy, _, ok := fit.gradient(sp.P, true, r.Sol.BoundaryValue(id, sp.P), eye)
 		if !ok {
 			continue // a sample in a corner no fluid node can see: nothing honest to report
 		}
@@ -147,7 +138,8 @@ func velocityField(sol *solver.PsiSolution, fl Fluid) *Field {
 	steps := [4][2]int{{1, 0}, {-1, 0}, {0, 1}, {0, -1}}
 	value := func(i, j, d int, a mesh.Arm) float64 {
 		if a.Boundary != mesh.NoBoundary {
-			return boundaryPsi(sol, a.Boundary)
+			end := g.At(i, j).Add(mesh.Point{X: float64(steps[d][0]), Y: float64(steps[d][1])}.Scale(a.Theta * h))
+			return sol.BoundaryValue(a.Boundary, end)
 		}
 		return psi[g.Index(i+steps[d][0], j+steps[d][1])]
 	}

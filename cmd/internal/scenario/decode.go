@@ -39,10 +39,10 @@ const (
 const endTolerance = 1e-9
 
 var (
-	methodNames = []string{"auto", "mgcg", "cg", "sor"}
-	imageNames  = []string{"streamlines", "speed", "pressure", "flownet", "walls", "surfaces"}
-	shapeNames  = []string{"circle", "ellipse", "rectangle", "polygon", "naca4"}
-	profileKind = []string{"straight", "smooth"}
+	methodNames  = []string{"auto", "mgcg", "cg", "sor"}
+	imageNames   = []string{"streamlines", "speed", "pressure", "flownet", "walls", "surfaces"}
+	shapeNames   = []string{"circle", "ellipse", "rectangle", "polygon", "naca4"}
+	profileNames = []string{"straight", "smooth"}
 )
 
 // Methods returns the solver methods a scenario may name, "auto" first.
@@ -660,7 +660,7 @@ func (d *decoder) channel(t table) {
 	default:
 		d.failf(t.key("height"), "missing required key (or give wall profiles lower and upper)")
 	}
-	c.Profile = d.oneOf(t, "profile", profileKind, "straight")
+	c.Profile = d.oneOf(t, "profile", profileNames, "straight")
 }
 
 // wall returns the wall profile at k: at least 2 points, x not decreasing

@@ -2,6 +2,7 @@ package scenario
 
 import (
 	"errors"
+	"fmt"
 	"os"
 	"path/filepath"
 	"strings"
@@ -84,4 +85,45 @@ func FuzzParse(f *testing.F) {
 			t.Errorf("Parse: error at line %d of a %d-line document: %v", e.Line, len(lines), err)
 		}
 	})
+}
+
+// TestParseHostile feeds documents built to make a careless decoder slow or
+// crash: deep nesting, very long dotted keys and headers, many sections.
+// Each must come back with an *Error (they are all invalid scenarios).
+func TestParseHostile(t *testing.T) {
+	const root = "unknown key (allowed: name, title, fluid, inflow, channel, grid, solver, obstacle, probe, output)"
+	tests := []struct {
+		name string
+		src  string
+		want string
+	}{
+		{"nested arrays", "x = " + strings.Repeat("[", 9000) + strings.Repeat("]", 9000) + "\n", "h.toml:1:1: x: " + root},
+		{"too deeply nested", "x = " + strings.Repeat("[", 20000) + strings.Repeat("]", 20000) + "\n",
+			"h.toml:1:10005: arrays and inline tables are nested more than the maximum of 10000 levels deep"},
+		{"nested inline tables", "x = " + strings.Repeat("{a = ", 5000) + "1" + strings.Repeat("}", 5000) + "\n", "h.toml:1:1: x: " + root},
+		{"nested wall points", walls(t, strings.Repeat("[", 5000)+strings.Repeat("]", 5000), "[[0, 1], [4, 1]]"),
+			"h.toml:8:10: channel.lower[0]: must be a point [x, y] (2 numbers), got 1 element"},
+		{"long dotted key", strings.Repeat("a.", 20000) + "b = 1\n", "h.toml:1:1: a: " + root},
+		{"long header", "[" + strings.Repeat("a.", 20000) + "b]\nc = 1\n", "h.toml:1:2: a: " + root},
+		{"many array tables", base + strings.Repeat("[[obstacle]]\n", 5000), "h.toml:11:1: obstacle[0].name: missing required key"},
+		{"many keys", base + func() string {
+			var b strings.Builder
+			for i := range 5000 {
+				fmt.Fprintf(&b, "k%d = 1\n", i)
+			}
+			return b.String()
+		}(), "h.toml:11:1: grid.k0: unknown key (allowed: spacing, cells_across)"},
+	}
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			s, err := Parse("h.toml", []byte(tt.src))
+			var e *Error
+			if s != nil || !errors.As(err, &e) {
+				t.Fatalf("got (%v, %v), want an *Error", s != nil, err)
+			}
+			if got := err.Error(); got != tt.want {
+				t.Errorf("got  %s\nwant %s", got, tt.want)
+			}
+		})
+	}
 }

@@ -71,11 +71,11 @@ func newPositions(src []byte) *positions {
 // long to be worth following.
 func (p *positions) header(e *unstable.Node, counts map[string]int) (prefix string, skip bool) {
 	var parts []*unstable.Node
+	n := 0
 	it := e.Key()
 	for it.Next() {
-		parts = append(parts, it.Node())
-		if len(parts) > maxKeyParts {
-			return "", true
+		if n++; n <= maxKeyParts {
+			parts = append(parts, it.Node())
 		}
 	}
 	if len(parts) == 0 {
@@ -86,25 +86,32 @@ func (p *positions) header(e *unstable.Node, counts map[string]int) (prefix stri
 		start--
 	}
 	path := ""
-	for i, n := range parts {
-		path = joinKey(path, string(n.Data))
-		last := i == len(parts)-1
+	for i, part := range parts {
+		path = joinKey(path, string(part.Data))
+		last := i == n-1
 		switch {
 		case last && e.Kind == unstable.ArrayTable:
 			k := counts[path]
 			counts[path] = k + 1
 			p.record(path, start, start)
 			path = indexKey(path, k)
-		case counts[path] > 0:
+		case counts[path] > 0 && !last:
+			// [a.b] after [[a]] is a table in the last element of a.
+			// ([a] after [[a]] is an error that go-toml reports at a.)
 			path = indexKey(path, counts[path]-1)
 		}
 		if last {
 			p.record(path, start, start)
+			if _, ok := p.at[int(part.Raw.Offset)]; !ok {
+				p.at[int(part.Raw.Offset)] = path // go-toml points at the key
+			}
 		} else {
-			p.record(path, int(n.Raw.Offset), -1)
+			p.record(path, int(part.Raw.Offset), -1)
 		}
 	}
-	return path, false
+	// A header longer than maxKeyParts names no table of the schema: keys
+	// below it are not followed.
+	return path, n > maxKeyParts
 }
 
 // keyValue records a key = value pair below prefix.
@@ -120,9 +127,9 @@ func (p *positions) keyValue(prefix string, kv *unstable.Node, counts map[string
 		}
 		path = joinKey(path, string(n.Data))
 		if counts[path] > 0 {
-			// A dotted key into an array of tables ([[a]] then a.b = 1 at
-			// the top level) is a TOML error reported by the decoder; its
-			// position is that of the key part.
+			// A dotted key through an array of tables is a TOML error
+			// that go-toml reports; index it as a header would, so that
+			// the path still names the last element.
 			path = indexKey(path, counts[path]-1)
 		}
 		p.record(path, int(n.Raw.Offset), -1)
@@ -154,6 +161,12 @@ func (p *positions) value(path string, v *unstable.Node, off int, counts map[str
 	}
 	switch v.Kind {
 	case unstable.Array:
+		// The first element starts at the first value after the '['; the
+		// others say where they start (see nodeStart).
+		first := -1
+		if off >= 0 {
+			first = p.skipToValue(off + 1)
+		}
 		i := 0
 		it := v.Children()
 		for it.Next() {
@@ -162,8 +175,12 @@ func (p *positions) value(path string, v *unstable.Node, off int, counts map[str
 				continue
 			}
 			elem := indexKey(path, i)
+			childOff := -1
+			if i == 0 {
+				childOff = first
+			}
 			i++
-			p.value(elem, c, -1, counts, depth+1)
+			p.value(elem, c, childOff, counts, depth+1)
 			if o, ok := p.val[elem]; ok {
 				p.record(elem, o, -1)
 			}
@@ -271,6 +288,24 @@ func (p *positions) offsetOf(line, byteCol int) int {
 	off := p.lines[line-1] + byteCol - 1
 	if off > len(p.src) {
 		return -1
+	}
+	return off
+}
+
+// skipToValue returns the offset of the first byte at or after off that is
+// not a blank, a line end or part of a comment.
+func (p *positions) skipToValue(off int) int {
+	for off < len(p.src) {
+		switch p.src[off] {
+		case ' ', '\t', '\r', '\n':
+			off++
+		case '#':
+			for off < len(p.src) && p.src[off] != '\n' {
+				off++
+			}
+		default:
+			return off
+		}
 	}
 	return off
 }
