@@ -13,7 +13,7 @@ import (
 // boundary between them): the central difference when both are, second order; the one-sided
 // difference when one is, first order; and, where a boundary lies on both sides, the values the
 // finite-volume system extends across the faces. Across a branch cut the neighbour's value is
-// moved to the node's branch (PhiSystem.LinkJump), so the velocity is smooth there. Speeds near
+// moved to the node's branch (PhiSystem.FaceJump), so the velocity is smooth there. Speeds near
 // walls and bodies are therefore less accurate than ψ's surface fits; take wall pressures from ψ.
 func PhiVelocity(sol *solver.PhiSolution, fl Fluid) *Field {
 	sys := sol.Sys
@@ -35,15 +35,35 @@ func PhiVelocity(sol *solver.PhiSolution, fl Fluid) *Field {
 				continue
 			}
 			arms, _ := m.Arms(k)
-			// jump moves a value at the neighbour in direction d to node k's branch.
-			jump := func(d int) float64 {
+			// face returns the face between node k and its neighbour in direction d and whether
+			// node k is on its high side.
+			face := func(d int) (int, bool) {
 				switch d {
+				case mesh.East:
+					return sys.Faces.EastFace(k), false
+				case mesh.West:
+					return sys.Faces.EastFace(k - 1), true
 				case mesh.North:
-					return sys.LinkJump(i, j)
-				case mesh.South:
-					return -sys.LinkJump(i, j-1)
+					return sys.Faces.NorthFace(k), false
 				}
-				return 0
+				return sys.Faces.NorthFace(k - g.NX), true
+			}
+			// rise returns how much φ rises across the cuts from node k's side of the face in
+			// direction d to the neighbour's, at along-face coordinate at.
+			rise := func(d int, at float64) float64 {
+				f, high := face(d)
+				r := sys.FaceJump(f, at)
+				if high {
+					return -r
+				}
+				return r
+			}
+			// along is the coordinate of the grid link's midpoint along the face in direction d.
+			along := func(d int) float64 {
+				if d == mesh.East || d == mesh.West {
+					return g.Y(j)
+				}
+				return g.X(i)
 			}
 			// whole returns the neighbour's φ across a whole link.
 			whole := func(d int) (float64, bool) {
@@ -55,7 +75,7 @@ func PhiVelocity(sol *solver.PhiSolution, fl Fluid) *Field {
 				if !has(q) {
 					return 0, false
 				}
-				return phi[q] + jump(d), true
+				return phi[q] - rise(d, along(d)), true
 			}
 			// extended returns the value the system couples node k's piece 0 to across the face
 			// in direction d (the largest open part's), when there is one.
@@ -64,27 +84,16 @@ func PhiVelocity(sol *solver.PhiSolution, fl Fluid) *Field {
 				if ni < 0 || ni >= g.NX || nj < 0 || nj >= g.NY {
 					return 0, false
 				}
-				var face int
-				high := false // node k on the face's high side
-				switch d {
-				case mesh.East:
-					face = sys.Faces.EastFace(k)
-				case mesh.West:
-					face, high = sys.Faces.EastFace(k-1), true
-				case mesh.North:
-					face = sys.Faces.NorthFace(k)
-				case mesh.South:
-					face, high = sys.Faces.NorthFace(k-g.NX), true
-				}
-				parts = sys.Faces.Parts(parts[:0], face)
-				best, piece := 0.0, -1
+				fc, high := face(d)
+				parts = sys.Faces.Parts(parts[:0], fc)
+				best, piece, at := 0.0, -1, 0.0
 				for _, p := range parts {
 					mine, other := p.Low, p.High
 					if high {
 						mine, other = p.High, p.Low
 					}
 					if mine == 0 && p.B-p.A > best {
-						best, piece = p.B-p.A, int(other)
+						best, piece, at = p.B-p.A, int(other), 0.5*(p.A+p.B)
 					}
 				}
 				q := g.Index(ni, nj)
@@ -92,9 +101,9 @@ func PhiVelocity(sol *solver.PhiSolution, fl Fluid) *Field {
 				case piece < 0 || piece == mesh.NoPiece:
 					return 0, false
 				case sys.Dirichlet[q]:
-					return sys.Known[q] + jump(d), true
+					return sys.Known[q] - rise(d, at), true
 				case sys.Unknown[q] >= 0:
-					return sol.X[int(sys.Unknown[q])+piece] + jump(d), true
+					return sol.X[int(sys.Unknown[q])+piece] - rise(d, at), true
 				}
 				return 0, false
 			}
