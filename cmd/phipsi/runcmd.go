@@ -12,6 +12,7 @@ import (
 
 	"golang.org/x/term"
 
+	"phipsi/cmd/internal/render"
 	"phipsi/cmd/internal/report"
 	"phipsi/cmd/internal/scenario"
 	"phipsi/mesh"
@@ -191,6 +192,16 @@ func writeOutputs(ctx context.Context, dir string, sc *scenario.Scenario, res *f
 			name  string
 			write func(io.Writer) error
 		}{name, func(w io.Writer) error { return report.WriteSurfaceCSV(w, s) }})
+	}
+	images, err := render.Render(res, nil, render.Options{Width: sc.Output.ImageWidth, Title: sc.Title, Images: sc.Output.Images})
+	if err != nil {
+		return err
+	}
+	for _, im := range images {
+		files = append(files, struct {
+			name  string
+			write func(io.Writer) error
+		}{im.Name + ".png", func(w io.Writer) error { _, err := w.Write(im.PNG); return err }})
 	}
 	if sc.Output.FieldCSV {
 		files = append(files, struct {
