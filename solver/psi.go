@@ -285,7 +285,7 @@ func SolvePsi(ctx context.Context, sys *PsiSystem, method string, set *Settings)
 func (sys *PsiSystem) closureRow(b int, c contour, x0 []float64, xk [][]float64) ([]float64, float64, error) {
 	cond := sys.BC.Bodies[b]
 	if cond.Kutta {
-		return nil, 0, fmt.Errorf("solver: body %q: the Kutta condition is not available in this version", sys.Mesh.Geom.Bodies[b].Name)
+		return sys.kuttaRow(b, x0, xk)
 	}
 	row := make([]float64, len(xk))
 	for j := range xk {
@@ -297,7 +297,16 @@ func (sys *PsiSystem) closureRow(b int, c contour, x0 []float64, xk [][]float64)
 // solverFor returns the linear solve of the chosen method.
 func (sys *PsiSystem) solverFor(method string) (func(ctx context.Context, b, x []float64, s *Settings) (Stats, error), error) {
 	switch method {
-	case MethodAuto, MethodKrylov, "":
+	case MethodAuto, MethodMG, "":
+		// BiCGStab with a multigrid V-cycle; one hierarchy serves all the superposition solves.
+		mg, err := NewMultigrid(sys.A, sys.Mesh.Grid, sys.Nodes, MGOptions{})
+		if err != nil {
+			return nil, fmt.Errorf("stream function: %w", err)
+		}
+		return func(ctx context.Context, b, x []float64, s *Settings) (Stats, error) {
+			return BiCGStab(ctx, sys.A, b, x, mg, s)
+		}, nil
+	case MethodKrylov:
 		jac := NewJacobi(sys.A)
 		return func(ctx context.Context, b, x []float64, s *Settings) (Stats, error) {
 			return BiCGStab(ctx, sys.A, b, x, jac, s)
@@ -308,8 +317,6 @@ func (sys *PsiSystem) solverFor(method string) (func(ctx context.Context, b, x [
 		return func(ctx context.Context, b, x []float64, s *Settings) (Stats, error) {
 			return sor.Solve(ctx, sys.A, b, x, s)
 		}, nil
-	case MethodMG:
-		return nil, fmt.Errorf("%w %q: multigrid is not available in this version (use auto, cg or sor)", ErrUnknownMethod, method)
 	}
 	return nil, fmt.Errorf("%w %q (allowed: auto, mgcg, cg, sor)", ErrUnknownMethod, method)
 }

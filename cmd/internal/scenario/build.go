@@ -81,10 +81,7 @@ func (s *Scenario) Plan(spacing float64) (*Plan, error) {
 		return nil, s.Errorf(s.spacingKey(spacing), "spacing %g m leaves fewer than 3 cells across the channel", h)
 	}
 	p := &Plan{Scenario: s, Geom: geo, Grid: g, Memory: EstimateMemory(g, len(geo.Bodies))}
-	for k, o := range s.Obstacles {
-		if o.Kutta {
-			return nil, s.Errorf(fmt.Sprintf("obstacle[%d].kutta", k), "the Kutta condition is not available in this version; give the circulation instead")
-		}
+	for _, o := range s.Obstacles {
 		b := bc.Body{Kutta: o.Kutta, Circulation: o.Circulation}
 		if o.HasTrailingEdge {
 			b.TrailingEdge = &mesh.Point{X: o.TrailingEdge[0], Y: o.TrailingEdge[1]}
