@@ -131,6 +131,19 @@ func runCmd(ctx context.Context, args []string, stdout, stderr io.Writer) error 
 	if err != nil {
 		return err
 	}
+	phiSys, err := solver.AssemblePhi(m, set, sol.Circulation, nil)
+	if err != nil {
+		return err
+	}
+	phiSol, err := solver.SolvePhi(ctx, phiSys, sc.Solver.Method, settings)
+	prog.done()
+	if err != nil {
+		return err
+	}
+	mismatch, err := flow.Mismatch(res, phiSol)
+	if err != nil {
+		return err
+	}
 	var probes []flow.ProbeValue
 	for _, p := range sc.Probes {
 		v, err := res.Probe(p.Name, mesh.Point{X: p.At[0], Y: p.At[1]})
@@ -140,7 +153,7 @@ func runCmd(ctx context.Context, args []string, stdout, stderr io.Writer) error 
 		probes = append(probes, v)
 	}
 	sum, err := report.NewSummary(report.Input{Version: version, Scenario: sc, Method: methodName(sc.Solver.Method),
-		Result: res, Probes: probes, Elapsed: time.Since(start)})
+		Result: res, Phi: phiSol, Mismatch: &mismatch, Probes: probes, Elapsed: time.Since(start)})
 	if err != nil {
 		return err
 	}
@@ -148,7 +161,7 @@ func runCmd(ctx context.Context, args []string, stdout, stderr io.Writer) error 
 	if out == "" {
 		out = sc.Name + "-out"
 	}
-	if err := writeOutputs(ctx, out, sc, res, sum); err != nil {
+	if err := writeOutputs(ctx, out, sc, res, phiSol.Phi, sum); err != nil {
 		return err
 	}
 	switch {
@@ -168,11 +181,14 @@ func methodName(m string) string {
 	case solver.MethodMG:
 		return "mgcg (multigrid-preconditioned BiCGStab)"
 	}
-	return m + " (BiCGStab, Jacobi-preconditioned)"
+	if m == solver.MethodKrylov {
+		return "cg (BiCGStab, Jacobi-preconditioned)"
+	}
+	return m + " (BiCGStab, multigrid-preconditioned)"
 }
 
 // writeOutputs writes every output file atomically into dir.
-func writeOutputs(ctx context.Context, dir string, sc *scenario.Scenario, res *flow.Result, sum *report.Summary) error {
+func writeOutputs(ctx context.Context, dir string, sc *scenario.Scenario, res *flow.Result, phi []float64, sum *report.Summary) error {
 	if err := os.MkdirAll(dir, 0o755); err != nil {
 		return fmt.Errorf("output folder: %w", err)
 	}
@@ -193,7 +209,7 @@ func writeOutputs(ctx context.Context, dir string, sc *scenario.Scenario, res *f
 			write func(io.Writer) error
 		}{name, func(w io.Writer) error { return report.WriteSurfaceCSV(w, s) }})
 	}
-	images, err := render.Render(res, nil, render.Options{Width: sc.Output.ImageWidth, Title: sc.Title, Images: sc.Output.Images})
+	images, err := render.Render(res, phi, render.Options{Width: sc.Output.ImageWidth, Title: sc.Title, Images: sc.Output.Images})
 	if err != nil {
 		return err
 	}
@@ -207,7 +223,7 @@ func writeOutputs(ctx context.Context, dir string, sc *scenario.Scenario, res *f
 		files = append(files, struct {
 			name  string
 			write func(io.Writer) error
-		}{"field.csv", func(w io.Writer) error { return report.WriteFieldCSV(w, res, nil) }})
+		}{"field.csv", func(w io.Writer) error { return report.WriteFieldCSV(w, res, phi) }})
 	}
 	for _, f := range files {
 		if err := ctx.Err(); err != nil {

@@ -10,11 +10,13 @@ import (
 
 // PhiVelocity computes u = ∂φ/∂x and v = ∂φ/∂y (and speed, Cp, pressure) at every fluid node of
 // the φ solution. A derivative uses the neighbours joined to the node by whole grid links (no
-// boundary between them): the central difference when both are, second order; the one-sided
-// difference when one is, first order; and, where a boundary lies on both sides, the values the
-// finite-volume system extends across the faces. Across a branch cut the neighbour's value is
-// moved to the node's branch (PhiSystem.FaceJump), so the velocity is smooth there. Speeds near
-// walls and bodies are therefore less accurate than ψ's surface fits; take wall pressures from ψ.
+// boundary between them): the central difference when there is one on each side; the one-sided
+// three-point difference (−3φ₀ + 4φ₁ − φ₂)/(2H) when one side has two in a row; the two-point one
+// when it has just one; and, where a boundary lies on both sides, the values the finite-volume
+// system extends across the faces. On the inlet u is the imposed U. Across a branch cut the
+// neighbour's value is moved to the node's branch (PhiSystem.FaceJump), so the velocity is
+// smooth there. Speeds next to walls and bodies are therefore less accurate than ψ's surface
+// fits; take wall pressures from ψ.
 func PhiVelocity(sol *solver.PhiSolution, fl Fluid) *Field {
 	sys := sol.Sys
 	m := sys.Mesh
@@ -24,115 +26,20 @@ func PhiVelocity(sol *solver.PhiSolution, fl Fluid) *Field {
 		Speed: make([]float64, n), Cp: make([]float64, n), Pressure: make([]float64, n)}
 	U := sys.BC.Speed
 	h := g.H
-	phi := sol.Phi
-	has := func(k int) bool { return m.IsFluid(k) && (sys.Unknown[k] >= 0 || sys.Dirichlet[k]) }
-	steps := [4][2]int{{1, 0}, {-1, 0}, {0, 1}, {0, -1}}
-	var parts []mesh.FacePart
+	pn := phiNodes{sol: sol, g: g}
 	for j := range g.NY {
 		for i := range g.NX {
 			k := g.Index(i, j)
-			if !has(k) {
+			if !pn.has(k) {
 				continue
 			}
-			arms, _ := m.Arms(k)
-			// face returns the face between node k and its neighbour in direction d and whether
-			// node k is on its high side.
-			face := func(d int) (int, bool) {
-				switch d {
-				case mesh.East:
-					return sys.Faces.EastFace(k), false
-				case mesh.West:
-					return sys.Faces.EastFace(k - 1), true
-				case mesh.North:
-					return sys.Faces.NorthFace(k), false
-				}
-				return sys.Faces.NorthFace(k - g.NX), true
+			var u float64
+			if i == 0 && !sys.Dirichlet[k] {
+				u = U // the inlet condition ∂φ/∂x = U
+			} else {
+				u = pn.derivative(i, j, mesh.East, mesh.West) / h
 			}
-			// rise returns how much φ rises across the cuts from node k's side of the face in
-			// direction d to the neighbour's, at along-face coordinate at.
-			rise := func(d int, at float64) float64 {
-				f, high := face(d)
-				r := sys.FaceJump(f, at)
-				if high {
-					return -r
-				}
-				return r
-			}
-			// along is the coordinate of the grid link's midpoint along the face in direction d.
-			along := func(d int) float64 {
-				if d == mesh.East || d == mesh.West {
-					return g.Y(j)
-				}
-				return g.X(i)
-			}
-			// whole returns the neighbour's φ across a whole link.
-			whole := func(d int) (float64, bool) {
-				ni, nj := i+steps[d][0], j+steps[d][1]
-				if ni < 0 || ni >= g.NX || nj < 0 || nj >= g.NY || arms[d].Boundary != mesh.NoBoundary {
-					return 0, false
-				}
-				q := g.Index(ni, nj)
-				if !has(q) {
-					return 0, false
-				}
-				return phi[q] - rise(d, along(d)), true
-			}
-			// extended returns the value the system couples node k's piece 0 to across the face
-			// in direction d (the largest open part's), when there is one.
-			extended := func(d int) (float64, bool) {
-				ni, nj := i+steps[d][0], j+steps[d][1]
-				if ni < 0 || ni >= g.NX || nj < 0 || nj >= g.NY {
-					return 0, false
-				}
-				fc, high := face(d)
-				parts = sys.Faces.Parts(parts[:0], fc)
-				best, piece, at := 0.0, -1, 0.0
-				for _, p := range parts {
-					mine, other := p.Low, p.High
-					if high {
-						mine, other = p.High, p.Low
-					}
-					if mine == 0 && p.B-p.A > best {
-						best, piece, at = p.B-p.A, int(other), 0.5*(p.A+p.B)
-					}
-				}
-				q := g.Index(ni, nj)
-				switch {
-				case piece < 0 || piece == mesh.NoPiece:
-					return 0, false
-				case sys.Dirichlet[q]:
-					return sys.Known[q] - rise(d, at), true
-				case sys.Unknown[q] >= 0:
-					return sol.X[int(sys.Unknown[q])+piece] - rise(d, at), true
-				}
-				return 0, false
-			}
-			deriv := func(plus, minus int) float64 {
-				f0 := phi[k]
-				fp, okp := whole(plus)
-				fm, okm := whole(minus)
-				switch {
-				case okp && okm:
-					return (fp - fm) / (2 * h)
-				case okp:
-					return (fp - f0) / h
-				case okm:
-					return (f0 - fm) / h
-				}
-				fp, okp = extended(plus)
-				fm, okm = extended(minus)
-				switch {
-				case okp && okm:
-					return (fp - fm) / (2 * h)
-				case okp:
-					return (fp - f0) / h
-				case okm:
-					return (f0 - fm) / h
-				}
-				return 0
-			}
-			u := deriv(mesh.East, mesh.West)
-			v := deriv(mesh.North, mesh.South)
+			v := pn.derivative(i, j, mesh.North, mesh.South) / h
 			sp := math.Hypot(u, v)
 			f.Valid[k] = true
 			f.U[k], f.V[k], f.Speed[k] = u, v, sp
@@ -141,6 +48,137 @@ func PhiVelocity(sol *solver.PhiSolution, fl Fluid) *Field {
 		}
 	}
 	return f
+}
+
+// phiNodes reads a φ solution node by node.
+type phiNodes struct {
+	sol   *solver.PhiSolution
+	g     mesh.Grid
+	parts []mesh.FacePart
+}
+
+var phiSteps = [4][2]int{{1, 0}, {-1, 0}, {0, 1}, {0, -1}}
+
+// has reports whether node k is a fluid node with a value.
+func (p *phiNodes) has(k int) bool {
+	sys := p.sol.Sys
+	return sys.Mesh.IsFluid(k) && (sys.Unknown[k] >= 0 || sys.Dirichlet[k])
+}
+
+// face returns the face between node (i, j) and its neighbour in direction d, and whether the
+// node lies on the face's high side.
+func (p *phiNodes) face(i, j, d int) (int, bool) {
+	fs := p.sol.Sys.Faces
+	k := p.g.Index(i, j)
+	switch d {
+	case mesh.East:
+		return fs.EastFace(k), false
+	case mesh.West:
+		return fs.EastFace(k - 1), true
+	case mesh.North:
+		return fs.NorthFace(k), false
+	}
+	return fs.NorthFace(k - p.g.NX), true
+}
+
+// rise returns how much φ rises across the cuts from node (i, j)'s side of the face in direction
+// d to the neighbour's, at along-face coordinate at.
+func (p *phiNodes) rise(i, j, d int, at float64) float64 {
+	f, high := p.face(i, j, d)
+	r := p.sol.Sys.FaceJump(f, at)
+	if high {
+		return -r
+	}
+	return r
+}
+
+// step returns the neighbour of node (i, j) in direction d and its φ moved to the branch of
+// (i, j), when a whole grid link joins two fluid nodes with values.
+func (p *phiNodes) step(i, j, d int) (ni, nj int, phi float64, ok bool) {
+	g := p.g
+	ni, nj = i+phiSteps[d][0], j+phiSteps[d][1]
+	if ni < 0 || ni >= g.NX || nj < 0 || nj >= g.NY {
+		return 0, 0, 0, false
+	}
+	if arms, _ := p.sol.Sys.Mesh.Arms(g.Index(i, j)); arms[d].Boundary != mesh.NoBoundary {
+		return 0, 0, 0, false
+	}
+	q := g.Index(ni, nj)
+	if !p.has(q) {
+		return 0, 0, 0, false
+	}
+	at := g.X(i) // the link's midpoint along a north face…
+	if d == mesh.East || d == mesh.West {
+		at = g.Y(j) // …or along an east face
+	}
+	return ni, nj, p.sol.Phi[q] - p.rise(i, j, d, at), true
+}
+
+// extended returns the value the system couples node (i, j)'s piece 0 to across the face in
+// direction d (that of the face's largest open part), moved to the node's branch.
+func (p *phiNodes) extended(i, j, d int) (float64, bool) {
+	g := p.g
+	sys := p.sol.Sys
+	ni, nj := i+phiSteps[d][0], j+phiSteps[d][1]
+	if ni < 0 || ni >= g.NX || nj < 0 || nj >= g.NY {
+		return 0, false
+	}
+	fc, high := p.face(i, j, d)
+	p.parts = sys.Faces.Parts(p.parts[:0], fc)
+	best, piece, at := 0.0, -1, 0.0
+	for _, part := range p.parts {
+		mine, other := part.Low, part.High
+		if high {
+			mine, other = part.High, part.Low
+		}
+		if mine == 0 && part.B-part.A > best {
+			best, piece, at = part.B-part.A, int(other), 0.5*(part.A+part.B)
+		}
+	}
+	q := g.Index(ni, nj)
+	switch {
+	case piece < 0 || piece == mesh.NoPiece:
+		return 0, false
+	case sys.Dirichlet[q]:
+		return sys.Known[q] - p.rise(i, j, d, at), true
+	case sys.Unknown[q] >= 0:
+		return p.sol.X[int(sys.Unknown[q])+piece] - p.rise(i, j, d, at), true
+	}
+	return 0, false
+}
+
+// derivative returns H·∂φ/∂s at node (i, j) along the direction plus (minus its opposite).
+func (p *phiNodes) derivative(i, j, plus, minus int) float64 {
+	f0 := p.sol.Phi[p.g.Index(i, j)]
+	pi, pj, fp, okp := p.step(i, j, plus)
+	mi, mj, fm, okm := p.step(i, j, minus)
+	switch {
+	case okp && okm:
+		return (fp - fm) / 2
+	case okp:
+		if _, _, f2, ok := p.step(pi, pj, plus); ok {
+			f2 += fp - p.sol.Phi[p.g.Index(pi, pj)] // the first link's branch shift applies too
+			return (-3*f0 + 4*fp - f2) / 2
+		}
+		return fp - f0
+	case okm:
+		if _, _, f2, ok := p.step(mi, mj, minus); ok {
+			f2 += fm - p.sol.Phi[p.g.Index(mi, mj)]
+			return (3*f0 - 4*fm + f2) / 2
+		}
+		return f0 - fm
+	}
+	fp, okp = p.extended(i, j, plus)
+	fm, okm = p.extended(i, j, minus)
+	switch {
+	case okp && okm:
+		return (fp - fm) / 2
+	case okp:
+		return fp - f0
+	case okm:
+		return f0 - fm
+	}
+	return 0
 }
 
 // MismatchDistance is how far, in grid spacings, a node must lie from every boundary (walls,

@@ -3,6 +3,7 @@ package report
 import (
 	"fmt"
 	"io"
+	"math"
 	"strings"
 	"text/tabwriter"
 )
@@ -26,29 +27,58 @@ func WriteConsole(w io.Writer, s *Summary, outDir string) error {
 		fmt.Fprintf(&b, "  check   |V(φ) − V(ψ)|/U ≤ %.2g away from walls\n", *s.Flow.PhiPsiMismatch)
 	}
 	b.WriteString("\n")
-	tw := tabwriter.NewWriter(&b, 0, 0, 2, ' ', tabwriter.AlignRight)
+	tw := tabwriter.NewWriter(&b, 0, 0, 2, ' ', 0)
 	if len(s.Obstacles) > 0 {
-		fmt.Fprintln(tw, "body\tψ m²/s\tΓ m²/s\tV_max/U\tat x, y m\tCp_min\tFx N/m\tFy N/m\t−ρUΓ N/m\tcells across\t")
+		fmt.Fprintln(tw, "  body\tψ m²/s\tΓ m²/s\tV_max/U\tat x, y m\tCp_min\tFx N/m\tFy N/m\t−ρUΓ N/m\tblockage\tε classical\tcells across\t")
 		for _, o := range s.Obstacles {
-			fmt.Fprintf(tw, "%s\t%.5g\t%.4g\t%.4f\t%s\t%.4f\t%.3g\t%.4g\t%.4g\t%.0f\t\n", o.Name, o.Psi, o.Circulation,
-				o.MaxSpeed/s.Flow.InletSpeed, pair(o.MaxSpeedAt), o.MinCp, o.Force[0], o.Force[1], o.LiftKuttaJoukowski, o.CellsAcross)
+			eps := "–"
+			if o.Blockage.ClassicalIncrement != nil {
+				eps = fmt.Sprintf("%.4f", *o.Blockage.ClassicalIncrement)
+			}
+			name := o.Name
+			if o.Kutta {
+				name += " (Kutta)"
+			}
+			fmt.Fprintf(tw, "  %s\t%.5g\t%.4g\t%.4f\t%s\t%.4f\t%.3g\t%.4g\t%.4g\t%.1f %%\t%s\t%.0f\t\n", name, o.Psi, clean(o.Circulation),
+				o.MaxSpeed/s.Flow.InletSpeed, pair(o.MaxSpeedAt), o.MinCp, clean(o.Force[0]), clean(o.Force[1]), clean(o.LiftKuttaJoukowski),
+				100*o.Blockage.Ratio, eps, o.CellsAcross)
 		}
-		fmt.Fprintln(tw, "\t\t\t\t\t\t\t\t\t\t")
+		if err := tw.Flush(); err != nil {
+			return err
+		}
+		b.WriteString("  (Fy is integrated from the surface pressure; in a channel it differs from −ρUΓ because the walls' images change the lift.)\n")
+		if bl := s.Blockage; bl != nil {
+			fmt.Fprintf(&b, "  all bodies block %.1f %% of the section at x = %.4g m; wall speed there %+.2f %% over the empty channel\n",
+				100*bl.Ratio, bl.X, 100*bl.WallIncrement)
+		}
+		b.WriteString("\n")
 	}
-	fmt.Fprintln(tw, "wall\tCp_min\tat x, y m\tCp_max\tat x, y m\tmax dCp/dx 1/m\tat x m\t")
+	fmt.Fprintln(tw, "  wall\tCp_min\tat x, y m\tCp_max\tat x, y m\tmax dCp/dx 1/m\tat x m\t")
 	for _, wl := range s.Walls {
-		fmt.Fprintf(tw, "%s\t%.4f\t%s\t%.4f\t%s\t%.3g\t%.4g\t\n", wl.Name, wl.MinCp, pair(wl.MinCpAt), wl.MaxCp, pair(wl.MaxCpAt),
+		fmt.Fprintf(tw, "  %s\t%.4f\t%s\t%.4f\t%s\t%.3g\t%.4g\t\n", wl.Name, clean(wl.MinCp), pair(wl.MinCpAt), clean(wl.MaxCp), pair(wl.MaxCpAt),
 			wl.MaxAdverseGradient, wl.MaxAdverseGradientAt[0])
-	}
-	if len(s.Probes) > 0 {
-		fmt.Fprintln(tw, "\t\t\t\t\t\t\t")
-		fmt.Fprintln(tw, "probe\tat x, y m\tu m/s\tv m/s\tspeed m/s\tCp\tp Pa\t")
-		for _, p := range s.Probes {
-			fmt.Fprintf(tw, "%s\t%s\t%.4g\t%.4g\t%.4g\t%.4f\t%.5g\t\n", p.Name, pair(p.At), p.U, p.V, p.Speed, p.Cp, p.Pressure)
-		}
 	}
 	if err := tw.Flush(); err != nil {
 		return err
+	}
+	for _, wl := range s.Walls {
+		for _, st := range wl.AdverseStretches {
+			fmt.Fprintf(&b, "  %s wall: pressure rises from x = %.4g to %.4g m (Cp up by %.3f, steepest %.3g per m)\n", wl.Name, st.X0, st.X1, st.CpRise, st.MaxGradient)
+		}
+	}
+	if len(s.Probes) > 0 {
+		b.WriteString("\n")
+		fmt.Fprintln(tw, "  probe\tat x, y m\tu m/s\tv m/s\tspeed m/s\tCp\tp Pa\tp_in − p Pa\tk = Δp/(½ρV²)\t")
+		for _, p := range s.Probes {
+			k := "–"
+			if p.K != nil {
+				k = fmt.Sprintf("%.4f", *p.K)
+			}
+			fmt.Fprintf(tw, "  %s\t%s\t%.4g\t%.4g\t%.4g\t%.4f\t%.6g\t%.4g\t%s\t\n", p.Name, pair(p.At), p.U, clean(p.V), p.Speed, clean(p.Cp), p.Pressure, clean(p.DeltaP), k)
+		}
+		if err := tw.Flush(); err != nil {
+			return err
+		}
 	}
 	if c := s.Cavitation; c != nil {
 		fmt.Fprintf(&b, "\ncavitation  σ = %.4g, lowest Cp %.4f on %s at %s, margin σ + Cp_min = %.4g\n", c.Sigma, c.MinCp, c.MinCpOn, pair(c.MinCpAt), c.Margin)
@@ -67,6 +97,15 @@ func WriteConsole(w io.Writer, s *Summary, outDir string) error {
 	b.WriteString("\n")
 	_, err := io.WriteString(w, b.String())
 	return err
+}
+
+// clean rounds values that are zero to round-off, and those that would print as −0.0000, to
+// zero.
+func clean(v float64) float64 {
+	if math.Abs(v) < 5e-5 {
+		return 0
+	}
+	return v
 }
 
 func short(v float64) string { return fmt.Sprintf("%.4g", v) }

@@ -7,6 +7,7 @@ import (
 
 	"phipsi/cmd/internal/scenario"
 	"phipsi/mesh"
+	"phipsi/solver"
 	"phipsi/solver/flow"
 )
 
@@ -27,6 +28,7 @@ type Summary struct {
 	Obstacles  []ObstacleInfo  `json:"obstacles"`
 	Walls      []WallInfo      `json:"walls"`
 	Probes     []ProbeInfo     `json:"probes"`
+	Blockage   *BlockageInfo   `json:"blockage,omitempty"`
 	Cavitation *CavitationInfo `json:"cavitation,omitempty"`
 	Warnings   []string        `json:"warnings"`
 	Caution    string          `json:"caution"`
@@ -49,6 +51,8 @@ type SolveInfo struct {
 	Residual     float64 `json:"residual"`   // largest final relative residual of any solve
 	Seconds      float64 `json:"seconds"`
 	SetupSeconds float64 `json:"setup_seconds"`
+	// PhiIterations is the velocity-potential solve's share of Iterations.
+	PhiIterations int `json:"phi_iterations"`
 }
 
 // FlowInfo holds the channel-wide numbers.
@@ -70,17 +74,41 @@ func pt(p mesh.Point) Point { return Point{p.X, p.Y} }
 
 // ObstacleInfo holds one body's numbers.
 type ObstacleInfo struct {
-	Name               string  `json:"name"`
-	Psi                float64 `json:"psi"`
-	Circulation        float64 `json:"circulation"`
-	MaxSpeed           float64 `json:"max_speed"`
-	MaxSpeedAt         Point   `json:"max_speed_at"`
-	MinCp              float64 `json:"min_cp"`
-	MinCpAt            Point   `json:"min_cp_at"`
-	Force              Point   `json:"force"`
-	LiftKuttaJoukowski float64 `json:"lift_kutta_joukowski"`
-	StagnationPoints   []Point `json:"stagnation_points"`
-	CellsAcross        float64 `json:"cells_across"`
+	Name               string       `json:"name"`
+	Psi                float64      `json:"psi"`
+	Circulation        float64      `json:"circulation"`
+	MaxSpeed           float64      `json:"max_speed"`
+	MaxSpeedAt         Point        `json:"max_speed_at"`
+	MinCp              float64      `json:"min_cp"`
+	MinCpAt            Point        `json:"min_cp_at"`
+	Force              Point        `json:"force"`
+	LiftKuttaJoukowski float64      `json:"lift_kutta_joukowski"`
+	StagnationPoints   []Point      `json:"stagnation_points"`
+	CellsAcross        float64      `json:"cells_across"`
+	Kutta              bool         `json:"kutta"`
+	TrailingEdge       *Point       `json:"trailing_edge"`
+	Blockage           BlockageInfo `json:"blockage"`
+	// GapToWall and GapToBody are the narrowest gaps, m (null when there is no other body).
+	GapToWall *float64 `json:"gap_to_wall"`
+	GapToBody *float64 `json:"gap_to_body"`
+}
+
+// BlockageInfo is how much of the section a body (or all bodies) fills; see flow.Blockage.
+type BlockageInfo struct {
+	X                  float64  `json:"x"`
+	Frontal            float64  `json:"frontal"`
+	Height             float64  `json:"height"`
+	Ratio              float64  `json:"ratio"`
+	ClassicalIncrement *float64 `json:"classical_increment"`
+	WallIncrement      float64  `json:"wall_increment"`
+}
+
+// StretchInfo is an x-range of a wall where the pressure rises downstream.
+type StretchInfo struct {
+	X0          float64 `json:"x0"`
+	X1          float64 `json:"x1"`
+	CpRise      float64 `json:"cp_rise"`
+	MaxGradient float64 `json:"max_gradient"`
 }
 
 // WallInfo holds one wall's numbers.
@@ -92,6 +120,9 @@ type WallInfo struct {
 	MaxCpAt              Point   `json:"max_cp_at"`
 	MaxAdverseGradient   float64 `json:"max_adverse_gradient"`
 	MaxAdverseGradientAt Point   `json:"max_adverse_gradient_at"`
+	// AdverseStretches lists where dCp/d(x/H) exceeds AdverseThreshold.
+	AdverseStretches []StretchInfo `json:"adverse_stretches"`
+	AdverseThreshold float64       `json:"adverse_threshold"`
 }
 
 // ProbeInfo holds the flow at one probe.
@@ -103,6 +134,10 @@ type ProbeInfo struct {
 	Speed    float64 `json:"speed"`
 	Pressure float64 `json:"pressure"`
 	Cp       float64 `json:"cp"`
+	// DeltaP is p_in − p at the probe, Pa, and K the calibration factor DeltaP/(½ρV²) that sets
+	// the speed at the probe from a measured pressure drop.
+	DeltaP float64  `json:"delta_p"`
+	K      *float64 `json:"k"`
 }
 
 // CavitationInfo is the cavitation check.
@@ -121,6 +156,7 @@ type Input struct {
 	Method   string
 	Result   *flow.Result
 	Probes   []flow.ProbeValue
+	Phi      *solver.PhiSolution
 	Mismatch *float64
 	Elapsed  time.Duration
 }
@@ -139,6 +175,14 @@ func NewSummary(in Input) (*Summary, error) {
 	for _, st := range sol.Solves {
 		s.Solve.Iterations += st.Iterations
 		s.Solve.Residual = math.Max(s.Solve.Residual, st.Residual)
+	}
+	if p := in.Phi; p != nil {
+		s.Solve.Solves++
+		s.Solve.Iterations += p.Stats.Iterations
+		s.Solve.Residual = math.Max(s.Solve.Residual, p.Stats.Residual)
+		s.Solve.Seconds += p.Solve.Seconds()
+		s.Solve.SetupSeconds += p.Setup.Seconds()
+		s.Solve.PhiIterations = p.Stats.Iterations
 	}
 	geo := m.Geom
 	outH := geo.Upper.Y(geo.Length) - geo.Lower.Y(geo.Length)
@@ -160,19 +204,57 @@ func NewSummary(in Input) (*Summary, error) {
 		for _, p := range b.Stagnation {
 			info.StagnationPoints = append(info.StagnationPoints, pt(p))
 		}
+		if te := sys.BC.TrailingEdges[k]; te.Set {
+			info.Kutta = true
+			p := pt(te.P)
+			info.TrailingEdge = &p
+		}
+		bl := r.BodyBlockage(k)
+		info.Blockage = BlockageInfo{X: bl.X, Frontal: bl.Frontal, Height: bl.Height, Ratio: bl.Ratio,
+			ClassicalIncrement: &bl.Classical, WallIncrement: bl.WallIncrement}
+		gw, gb := r.Clearance(k, m.H/2)
+		info.GapToWall = &gw
+		if !math.IsInf(gb, 1) {
+			info.GapToBody = &gb
+		}
 		s.Obstacles = append(s.Obstacles, info)
 		if b.CellsAcross < 20 {
 			s.warnf("obstacle %q spans only %.1f cells across (fewer than 20): refine the grid before trusting its peak speed", b.Name, b.CellsAcross)
 		}
+		if gap := math.Min(gw, gb); gap < 4*m.H {
+			s.warnf("obstacle %q leaves a gap of %.3g m (%.1f cells, fewer than 4) to a wall or another obstacle: the flow in the gap is under-resolved", b.Name, gap, gap/m.H)
+		}
+		box := geo.Bodies[k].Shape.Bounds()
+		hIn := sys.BC.InletHigh - sys.BC.InletLow
+		if up, down := box.Min.X, geo.Length-box.Max.X; math.Min(up, down) < 2*hIn {
+			s.warnf("obstacle %q is %.3g m from the inlet and %.3g m from the outlet, closer than two channel heights (%.3g m): the uniform-inflow and parallel-outflow conditions distort its flow", b.Name, up, down, 2*hIn)
+		}
+	}
+	if len(geo.Bodies) > 0 {
+		tb := r.TotalBlockage()
+		s.Blockage = &BlockageInfo{X: tb.X, Frontal: tb.Frontal, Height: tb.Height, Ratio: tb.Ratio, WallIncrement: tb.WallIncrement}
 	}
 	for _, id := range []int{mesh.LowerWall, mesh.UpperWall} {
 		w := r.Wall(id)
-		s.Walls = append(s.Walls, WallInfo{Name: w.Name, MinCp: w.MinCp.Value, MinCpAt: pt(w.MinCp.At),
+		info := WallInfo{Name: w.Name, MinCp: w.MinCp.Value, MinCpAt: pt(w.MinCp.At),
 			MaxCp: w.MaxCp.Value, MaxCpAt: pt(w.MaxCp.At), MaxAdverseGradient: w.MaxAdverseGradient,
-			MaxAdverseGradientAt: pt(w.MaxAdverseAt)})
+			MaxAdverseGradientAt: pt(w.MaxAdverseAt), AdverseStretches: []StretchInfo{}, AdverseThreshold: flow.AdverseThreshold}
+		for _, st := range r.AdverseStretches(id) {
+			info.AdverseStretches = append(info.AdverseStretches, StretchInfo{X0: st.X0, X1: st.X1, CpRise: st.CpRise, MaxGradient: st.MaxGrad})
+			if st.CpRise > flow.StrongAdverse {
+				s.warnf("%s wall: pressure rises by %.2f of the dynamic pressure from x = %.3g to %.3g m (adverse gradient): a real boundary layer may separate there, which ideal flow cannot show", w.Name, st.CpRise, st.X0, st.X1)
+			}
+		}
+		s.Walls = append(s.Walls, info)
 	}
 	for _, p := range in.Probes {
-		s.Probes = append(s.Probes, ProbeInfo{Name: p.Name, At: pt(p.At), U: p.U, V: p.V, Speed: p.Speed, Pressure: p.Pressure, Cp: p.Cp})
+		info := ProbeInfo{Name: p.Name, At: pt(p.At), U: p.U, V: p.V, Speed: p.Speed, Pressure: p.Pressure, Cp: p.Cp,
+			DeltaP: r.Fluid.Pressure - p.Pressure}
+		if q := 0.5 * r.Fluid.Density * p.Speed * p.Speed; q > 0 {
+			k := info.DeltaP / q
+			info.K = &k
+		}
+		s.Probes = append(s.Probes, info)
 	}
 	if s.Flow.MaxMach > 0.3 {
 		s.warnf("peak speed %.4g m/s is Mach %.2f (above 0.3, speed of sound %g m/s): compressibility is no longer negligible", vmax, s.Flow.MaxMach, sc.Fluid.SoundSpeed)

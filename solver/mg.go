@@ -1,0 +1,327 @@
+package solver
+
+import (
+	"fmt"
+	"runtime"
+
+	"phipsi/mesh"
+)
+
+// Default settings of the multigrid preconditioner, used where an MGOptions field is zero.
+const (
+	// DefaultMGSmooth is the number of Gauss–Seidel sweeps before and after each coarse-grid
+	// correction.
+	DefaultMGSmooth = 1
+	// DefaultMGCoarsest is the largest number of unknowns the coarsest level may have; it is
+	// solved exactly with a dense inverse.
+	DefaultMGCoarsest = 400
+)
+
+// MGOptions controls a multigrid preconditioner. The zero value means the defaults.
+type MGOptions struct {
+	// Symmetric makes the V-cycle a symmetric operator when A is symmetric, as CG needs: the
+	// sweeps after the coarse-grid correction visit the colours in the reverse order of those
+	// before it (the adjoint smoother). Otherwise both sweep in the same order.
+	Symmetric bool
+	// Smooth is the number of Gauss–Seidel sweeps on each level before and after the coarse-grid
+	// correction; 0 means DefaultMGSmooth. It must not be negative.
+	Smooth int
+	// Coarsest is the number of unknowns at or below which a level is not coarsened further but
+	// solved exactly; 0 means DefaultMGCoarsest. It must not be negative.
+	Coarsest int
+}
+
+// Multigrid is a geometric multigrid V-cycle used as a preconditioner (Tatebe 1993: R = Pᵀ,
+// equal smoothing before and after the correction, an exact coarsest solve and a zero initial
+// guess in every call, so that the V-cycle is a fixed linear operator M⁻¹). It is made by
+// NewMultigrid for a matrix whose unknowns are nodes of a structured grid, and is safe for use by
+// one goroutine at a time.
+//
+// Levels. Coarse node (I, J) of a level sits at node (2I, 2J) of the level above; a level of
+// nx × ny nodes has nx/2 + 1 by ny/2 + 1 coarse nodes, so odd and even node counts are both
+// covered (with an even count the last coarse column lies one node beyond the grid and carries
+// only the interpolation to the last fine column). Prolongation P is bilinear interpolation:
+// a fine node takes its coincident coarse value, the mean of the two coarse nodes beside it on
+// a coarse edge, or the mean of the four around it in a coarse cell. Restriction is R = Pᵀ
+// (full weighting 1, ½, ¼). A coarse node exists when some unknown of the level above
+// interpolates from it, so bodies, walls and thin gaps are seen by every level through the
+// operator, never through a rediscretised geometry.
+//
+// Coarse operators are Galerkin products A_c = Pᵀ A P (nine-point stencils on every coarse
+// level), computed from the matrix alone; holes, steps and small bodies need no special
+// treatment, and A_c is symmetric whenever A is. The coarsest level (at most Coarsest unknowns)
+// is solved exactly by a dense inverse formed once with an LU factorisation, or by the
+// pseudo-inverse from an SVD when the coarsest operator is singular or nearly so (which thin
+// features can cause).
+//
+// Smoothing is Gauss–Seidel in a colour order whose colours do not couple, so each colour is
+// updated in parallel with a result independent of the number of threads: on the finest level
+// red–black by the parity of i + j when every row is a five-point stencil (as the
+// Shortley–Weller and cut-face rows are), otherwise four colours by (i mod 2, j mod 2); on the
+// nine-point coarse levels always the four colours, which no nine-point stencil couples.
+//
+// Work. Every kernel walks fixed blocks of grid rows, shared among min(GOMAXPROCS, blocks)
+// goroutines; no kernel reduces across blocks, so results are bit-identical for any number of
+// threads. All memory is allocated by NewMultigrid; PreconSolve allocates nothing.
+//
+// Reference: O. Tatebe, The multigrid preconditioned conjugate gradient method, Proc. Sixth
+// Copper Mountain Conference on Multigrid Methods, NASA CP 3224 (1993) 621–634; W. L. Briggs,
+// V. E. Henson, S. F. McCormick, A Multigrid Tutorial, 2nd ed., SIAM, 2000, ch. 3 and 8; U.
+// Trottenberg, C. W. Oosterlee, A. Schüller, Multigrid, Academic Press, 2001, §5.4 (Galerkin
+// coarse operators) and §4.7 (multicolour smoothers).
+type Multigrid struct {
+	n         int
+	smooth    int
+	symmetric bool
+	fine      *fineLevel
+	levels    []*gridLevel  // coarse levels, coarsest last; empty when direct is set
+	direct    *denseInverse // the fine level solved exactly (small systems), or nil
+	team      *team
+	// minParallel is the number of nodes below which a level's kernels run on the calling
+	// goroutine alone: for smaller levels, waking helpers costs more than it saves.
+	minParallel int
+	// unfused makes the finest level run its steps as separate passes (for tests: the fused
+	// passes must give the same bits).
+	unfused bool
+}
+
+// mgMinParallel is the default Multigrid.minParallel.
+const mgMinParallel = 32768
+
+// mgBlockNodes is about the number of grid nodes in one block of work.
+const mgBlockNodes = 16384
+
+// NewMultigrid builds a V-cycle preconditioner for the square matrix a whose unknown u sits at
+// node nodes[u] (index j·NX + i) of grid g. nodes must be non-decreasing; several unknowns may
+// share a node (the pieces of a cell that a thin body splits), provided they do not couple to
+// each other; they interpolate from the same coarse nodes. Every off-diagonal entry of a must
+// couple nodes at most one grid step apart in each direction (five- or nine-point rows), and
+// every diagonal entry must be positive. The matrix is referenced, not copied, and must not
+// change while the preconditioner is in use.
+//
+// NewMultigrid returns an error if a's couplings or diagonal do not meet these conditions or a
+// coarse level ends with a non-positive diagonal entry. It panics if len(nodes) is not a.Len(),
+// a node lies outside the grid, or an option is negative.
+func NewMultigrid(a *CSR, g mesh.Grid, nodes []int32, o MGOptions) (*Multigrid, error) {
+	if len(nodes) != a.N {
+		panic(fmt.Sprintf("solver: NewMultigrid: len(nodes) = %d, want a.Len() = %d", len(nodes), a.N))
+	}
+	if o.Smooth < 0 || o.Coarsest < 0 {
+		panic(fmt.Sprintf("solver: NewMultigrid: MGOptions.Smooth and Coarsest must be >= 0, got %d and %d", o.Smooth, o.Coarsest))
+	}
+	if g.NX < 1 || g.NY < 1 {
+		panic(fmt.Sprintf("solver: NewMultigrid: grid must have at least one node, got %d × %d", g.NX, g.NY))
+	}
+	for u, k := range nodes {
+		if k < 0 || int(k) >= g.Len() {
+			panic(fmt.Sprintf("solver: NewMultigrid: nodes[%d] = %d is outside the %d × %d grid", u, k, g.NX, g.NY))
+		}
+		if u > 0 && k < nodes[u-1] {
+			panic(fmt.Sprintf("solver: NewMultigrid: nodes must be non-decreasing, got %d after %d at %d", k, nodes[u-1], u))
+		}
+	}
+	mg := &Multigrid{
+		n:           a.N,
+		smooth:      o.Smooth,
+		symmetric:   o.Symmetric,
+		team:        newTeam(),
+		minParallel: mgMinParallel,
+	}
+	if mg.smooth == 0 {
+		mg.smooth = DefaultMGSmooth
+	}
+	coarsest := o.Coarsest
+	if coarsest == 0 {
+		coarsest = DefaultMGCoarsest
+	}
+	runtime.AddCleanup(mg, func(t *team) { t.stop() }, mg.team)
+
+	if a.N == 0 {
+		return mg, nil
+	}
+	if a.N <= coarsest || g.NX < 3 || g.NY < 3 {
+		d, err := denseFromCSR(a, o.Symmetric)
+		if err != nil {
+			return nil, err
+		}
+		mg.direct = d
+		return mg, nil
+	}
+	fine, err := newFineLevel(a, g, nodes)
+	if err != nil {
+		return nil, err
+	}
+	mg.fine = fine
+	lv, err := fine.coarsen(mg)
+	if err != nil {
+		return nil, err
+	}
+	mg.levels = append(mg.levels, lv)
+	for lv.active > coarsest && (lv.nx > 2 || lv.ny > 2) {
+		if lv, err = lv.coarsen(mg); err != nil {
+			return nil, err
+		}
+		mg.levels = append(mg.levels, lv)
+	}
+	last := mg.levels[len(mg.levels)-1]
+	if last.dense, err = last.denseInverse(o.Symmetric); err != nil {
+		return nil, err
+	}
+	// One residual buffer serves every coarse level: a level's residual is restricted before
+	// the next level computes its own.
+	size := 0
+	for _, lv := range mg.levels[:len(mg.levels)-1] {
+		size = max(size, len(lv.x))
+	}
+	shared := make([]float64, size)
+	for l, lv := range mg.levels {
+		lv.r = shared[:min(len(shared), len(lv.x))]
+		if l == 0 {
+			lv.src, lv.srcStride = fine.r, fine.stride
+		} else {
+			lv.src, lv.srcStride = shared, mg.levels[l-1].sx
+		}
+		if l+1 < len(mg.levels) {
+			lv.coarser = mg.levels[l+1]
+		}
+	}
+	fine.coarse = mg.levels[0]
+	return mg, nil
+}
+
+// Len returns the number of unknowns of the finest level.
+func (mg *Multigrid) Len() int { return mg.n }
+
+// Levels returns the number of unknowns on each level, finest first. A coarse level counts
+// the coarse nodes some unknown of the level above interpolates from.
+func (mg *Multigrid) Levels() []int {
+	out := []int{mg.n}
+	for _, lv := range mg.levels {
+		out = append(out, lv.active)
+	}
+	return out
+}
+
+// PreconSolve applies one V-cycle to r with a zero initial guess and writes the result into
+// dst: dst = M⁻¹ r for the fixed linear operator M⁻¹ the V-cycle is. It never fails. It panics
+// if dst or r does not have length Len or they are the same slice.
+func (mg *Multigrid) PreconSolve(dst, r []float64) error {
+	if len(dst) != mg.n || len(r) != mg.n {
+		panic(fmt.Sprintf("solver: Multigrid.PreconSolve: len(dst) = %d and len(r) = %d, want %d", len(dst), len(r), mg.n))
+	}
+	if mg.n == 0 {
+		return nil
+	}
+	if &dst[0] == &r[0] {
+		panic("solver: Multigrid.PreconSolve: dst and r must not be the same slice")
+	}
+	if mg.direct != nil {
+		mg.direct.solveTo(dst, r)
+		return nil
+	}
+	f := mg.fine
+	f.x, f.b = dst, r
+
+	// Down: smooth, form the residual, restrict it.
+	fused := f.ncolour == 2 && mg.smooth == 1 && !mg.unfused
+	if fused {
+		mg.runFused(finePre, 0)
+	} else {
+		mg.smoothFine(true)
+		mg.runFine(fineResidual, f.lastColour())
+	}
+	for l, lv := range mg.levels {
+		mg.runGrid(lv, gridRestrict, 0)
+		if l == len(mg.levels)-1 {
+			lv.dense.solveTo(lv.x, lv.b)
+			break
+		}
+		mg.smoothGrid(lv, true)
+		mg.runGrid(lv, gridResidual, 0)
+	}
+	// Up: interpolate the correction, smooth.
+	for l := len(mg.levels) - 2; l >= 0; l-- {
+		lv := mg.levels[l]
+		mg.runGrid(lv, gridProlong, 0)
+		mg.smoothGrid(lv, false)
+	}
+	if fused {
+		mg.runFused(finePost, mg.sweepColour(0, 2, false))
+	} else {
+		mg.runFine(fineProlong, 0)
+		mg.smoothFine(false)
+	}
+	f.x, f.b = nil, nil // keep no reference to the caller's vectors
+	return nil
+}
+
+// sweepColour returns the colour of step s (0 ≤ s < nc) of a sweep: ascending before the
+// coarse-grid correction and, in a symmetric V-cycle, descending after it.
+func (mg *Multigrid) sweepColour(s, nc int, pre bool) int {
+	if !pre && mg.symmetric {
+		return nc - 1 - s
+	}
+	return s
+}
+
+// smoothFine runs the smoothing sweeps of the finest level; before the correction the first
+// colour starts from x = 0.
+func (mg *Multigrid) smoothFine(pre bool) {
+	f := mg.fine
+	for sweep := range mg.smooth {
+		for s := range f.ncolour {
+			c := mg.sweepColour(s, f.ncolour, pre)
+			if pre && sweep == 0 && s == 0 {
+				mg.runFine(fineInit, c)
+				continue
+			}
+			mg.runFine(fineSmooth, c)
+		}
+	}
+}
+
+// smoothGrid runs the smoothing sweeps of coarse level lv.
+func (mg *Multigrid) smoothGrid(lv *gridLevel, pre bool) {
+	for sweep := range mg.smooth {
+		for s := range 4 {
+			c := mg.sweepColour(s, 4, pre)
+			if pre && sweep == 0 && s == 0 {
+				mg.runGrid(lv, gridInit, c)
+				continue
+			}
+			mg.runGrid(lv, gridSmooth, c)
+		}
+	}
+}
+
+// runFine runs kernel op with parameter c on the blocks of the finest level.
+func (mg *Multigrid) runFine(op, c int) {
+	f := mg.fine
+	f.op, f.c = op, c
+	mg.team.run(f, f.nblocks, f.nx*f.ny < mg.minParallel)
+}
+
+// runFused runs fused kernel op of the finest level (first post-smoothing colour c) on one
+// chunk of rows per goroutine, then the rows the chunks left out.
+func (mg *Multigrid) runFused(op, c int) {
+	f := mg.fine
+	f.op, f.c = op, c
+	f.nchunk = 1
+	if f.nx*f.ny >= mg.minParallel {
+		f.nchunk = max(1, min(runtime.GOMAXPROCS(0), maxTeamWorkers, f.ny/8))
+	}
+	mg.team.run(f, f.nchunk, f.nchunk == 1)
+	f.finishPipeline()
+}
+
+// runGrid runs kernel op with parameter c on the blocks of coarse level lv.
+func (mg *Multigrid) runGrid(lv *gridLevel, op, c int) {
+	lv.op, lv.c = op, c
+	mg.team.run(lv, lv.nblocks, lv.nx*lv.ny < mg.minParallel)
+}
+
+// blockRowsFor returns the number of grid rows per block for rows of nx nodes.
+func blockRowsFor(nx int) int { return max(1, (mgBlockNodes+nx-1)/nx) }
+
+// ceilDiv returns ⌈a/b⌉ for a ≥ 0, b > 0.
+func ceilDiv(a, b int) int { return (a + b - 1) / b }

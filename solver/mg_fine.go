@@ -1,0 +1,368 @@
+package solver
+
+import (
+	"fmt"
+	"slices"
+
+	"phipsi/mesh"
+)
+
+// Kernels of the finest level, run block by block by fineLevel.runBlock.
+const (
+	fineInit     = iota // first step of a V-cycle from x = 0: x = b/A_uu on colour c, 0 elsewhere
+	fineSmooth          // Gauss–Seidel update of the rows of colour c
+	fineResidual        // r = b − A x on the padded grid, 0 on the rows of colour c
+	fineProlong         // x += P x_c from the first coarse level
+	finePre             // fused: init colour 0, smooth colour 1, residual (chunk c of the run)
+	finePost            // fused: prolong, smooth colour c1, smooth colour c2
+)
+
+// fineLevel is the finest level of a Multigrid: the caller's CSR rows on the caller's unknowns.
+type fineLevel struct {
+	a        *CSR
+	nx, ny   int
+	nodes    []int32
+	rowStart []int32 // the unknowns of grid row j are rowStart[j] ≤ u < rowStart[j+1]
+	colour   []uint8 // smoothing colour of each unknown
+	ncolour  int     // 2 (red–black) or 4
+	invDiag  []float64
+	// r is the residual on the grid, padded by one node left and below and two right and above
+	// (node (i, j) at (j+1)·stride + i + 1), zero at every node that is not an unknown, so that
+	// restriction needs no test.
+	r         []float64
+	stride    int
+	blockRows int // grid rows per block
+	nblocks   int
+	nchunk    int // chunks of the current fused run
+	coarse    *gridLevel
+
+	// The current run: kernel, its colour, the caller's vectors.
+	op, c int
+	x, b  []float64
+}
+
+// gridStep decodes the grid step from node k to node k + delta on rows of nx ≥ 3 nodes: the
+// (di, dj) with |di|, |dj| ≤ 1 and di + dj·nx = delta, if there is one.
+func gridStep(delta, nx int) (di, dj int, ok bool) {
+	for dj = -1; dj <= 1; dj++ {
+		if di = delta - dj*nx; di >= -1 && di <= 1 {
+			return di, dj, true
+		}
+	}
+	return 0, 0, false
+}
+
+// newFineLevel checks a's couplings against the grid and prepares the finest level.
+func newFineLevel(a *CSR, g mesh.Grid, nodes []int32) (*fineLevel, error) {
+	nx, ny := g.NX, g.NY
+	f := &fineLevel{
+		a: a, nx: nx, ny: ny, nodes: nodes,
+		rowStart: make([]int32, ny+1),
+		colour:   make([]uint8, a.N),
+		invDiag:  make([]float64, a.N),
+		stride:   nx + 3,
+	}
+	for _, k := range nodes {
+		f.rowStart[int(k)/nx+1]++
+	}
+	for j := range ny {
+		f.rowStart[j+1] += f.rowStart[j]
+	}
+	nine := false
+	for j := range ny {
+		for u := int(f.rowStart[j]); u < int(f.rowStart[j+1]); u++ {
+			i := int(nodes[u]) - j*nx
+			var diag float64
+			for k := a.RowPtr[u]; k < a.RowPtr[u+1]; k++ {
+				v, val := int(a.Col[k]), a.Val[k]
+				if v == u {
+					diag = val
+					continue
+				}
+				di, dj, ok := gridStep(int(nodes[v])-int(nodes[u]), nx)
+				if !ok || i+di < 0 || i+di >= nx {
+					return nil, fmt.Errorf("solver: multigrid: row %d at node (%d, %d) couples to node (%d, %d), more than one grid step away",
+						u, i, j, int(nodes[v])%nx, int(nodes[v])/nx)
+				}
+				if di == 0 && dj == 0 && val != 0 {
+					return nil, fmt.Errorf("solver: multigrid: rows %d and %d share node (%d, %d) and must not couple", u, v, i, j)
+				}
+				if di != 0 && dj != 0 && val != 0 {
+					nine = true
+				}
+			}
+			if !(diag > 0) || !isFinite(diag) {
+				return nil, fmt.Errorf("solver: multigrid: diagonal entry of row %d at node (%d, %d) must be positive, got %g", u, i, j, diag)
+			}
+			f.invDiag[u] = 1 / diag
+		}
+	}
+	f.ncolour = 2
+	if nine {
+		f.ncolour = 4
+	}
+	for j := range ny {
+		for u := int(f.rowStart[j]); u < int(f.rowStart[j+1]); u++ {
+			i := int(nodes[u]) - j*nx
+			if nine {
+				f.colour[u] = uint8(i&1 | (j&1)<<1)
+			} else {
+				f.colour[u] = uint8((i + j) & 1)
+			}
+		}
+	}
+	f.r = make([]float64, f.stride*(ny+3))
+	f.blockRows = blockRowsFor(nx)
+	f.nblocks = ceilDiv(ny, f.blockRows)
+	return f, nil
+}
+
+// lastColour returns the colour the smoothing before the correction updates last. Its rows have
+// a zero residual afterwards: no row of the same colour couples to them.
+func (f *fineLevel) lastColour() int { return f.ncolour - 1 }
+
+// rows returns the grid rows of block blk.
+func (f *fineLevel) rows(blk int) (j0, j1 int) {
+	j0 = blk * f.blockRows
+	return j0, min(f.ny, j0+f.blockRows)
+}
+
+// runBlock runs the current kernel on block blk (for the fused kernels: on chunk blk).
+func (f *fineLevel) runBlock(blk int) {
+	if f.op == finePre || f.op == finePost {
+		j0, j1 := f.chunk(blk)
+		f.pipeline(j0, j1)
+		return
+	}
+	j0, j1 := f.rows(blk)
+	lo, hi := int(f.rowStart[j0]), int(f.rowStart[j1])
+	switch f.op {
+	case fineInit:
+		f.initRange(lo, hi, f.c)
+	case fineSmooth:
+		f.smoothRange(lo, hi, f.c)
+	case fineResidual:
+		for j := j0; j < j1; j++ {
+			f.residualRow(j, f.c)
+		}
+	case fineProlong:
+		for j := j0; j < j1; j++ {
+			f.prolongRow(j)
+		}
+	}
+}
+
+// The fused kernels run three stages in one pass over the rows, so that each row's matrix
+// entries are read once while they are in cache: stage 0 on row t, stage 1 on row t − 1 and
+// stage 2 on row t − 2, where stage k+1 on row j needs stage k done on rows j−1, j, j+1. Before
+// the coarse-grid correction the stages are the first red step from x = 0, the black step and
+// the residual; after it, the interpolation of the correction and the two colour steps. Each
+// step computes exactly what the separate kernels compute, from the same values.
+//
+// In parallel, the rows are cut into one contiguous chunk per goroutine, of about equal numbers
+// of unknowns. A chunk's pipeline leaves out the rows that would need a neighbour chunk's rows:
+// stage 1 on its first and last rows, stage 2 on its first two and last two. finishPipeline does
+// those afterwards. Results are the same for any number of chunks.
+
+// chunk returns the grid rows of chunk b of nchunk: from the first row whose unknowns start at
+// or after b·n/nchunk.
+func (f *fineLevel) chunk(b int) (j0, j1 int) {
+	return f.chunkStart(b), f.chunkStart(b + 1)
+}
+
+// chunkStart returns the first row of chunk b.
+func (f *fineLevel) chunkStart(b int) int {
+	if b >= f.nchunk {
+		return f.ny
+	}
+	target := int32(int64(b) * int64(f.a.N) / int64(f.nchunk))
+	j, _ := slices.BinarySearch(f.rowStart[:f.ny], target)
+	return j
+}
+
+// pipeline runs the stages of the current fused kernel on rows [j0, j1) as far as the chunk
+// alone allows.
+func (f *fineLevel) pipeline(j0, j1 int) {
+	for t := j0; t < j1+2; t++ {
+		if t < j1 {
+			f.stage(0, t)
+		}
+		if s := t - 1; s >= j0+1 && s <= j1-2 {
+			f.stage(1, s)
+		}
+		if s := t - 2; s >= j0+2 && s <= j1-3 {
+			f.stage(2, s)
+		}
+	}
+}
+
+// finishPipeline runs the stages that the chunks' pipelines left out, in stage order.
+func (f *fineLevel) finishPipeline() {
+	for k := 1; k <= 2; k++ {
+		for b := range f.nchunk {
+			j0, j1 := f.chunk(b)
+			for j := j0; j < j1; j++ {
+				if j < j0+k || j > j1-1-k {
+					f.stage(k, j)
+				}
+			}
+		}
+	}
+}
+
+// stage runs stage k of the current fused kernel on row j.
+func (f *fineLevel) stage(k, j int) {
+	lo, hi := int(f.rowStart[j]), int(f.rowStart[j+1])
+	switch {
+	case f.op == finePre && k == 0:
+		f.initRange(lo, hi, 0)
+	case f.op == finePre && k == 1:
+		f.smoothRange(lo, hi, 1)
+	case f.op == finePre:
+		f.residualRow(j, 1)
+	case k == 0:
+		f.prolongRow(j)
+	case k == 1:
+		f.smoothRange(lo, hi, f.c)
+	default:
+		f.smoothRange(lo, hi, 1-f.c)
+	}
+}
+
+// initRange sets x_u = b_u / A_uu on the unknowns of colour c in [lo, hi) and x_u = 0 on the
+// others: the first Gauss–Seidel step from x = 0.
+func (f *fineLevel) initRange(lo, hi, c int) {
+	x := f.x[lo:hi]
+	b := f.b[lo:hi]
+	inv := f.invDiag[lo:hi]
+	col := f.colour[lo:hi]
+	b, inv, col = b[:len(x)], inv[:len(x)], col[:len(x)]
+	for q := range x {
+		if int(col[q]) == c {
+			x[q] = b[q] * inv[q]
+		} else {
+			x[q] = 0
+		}
+	}
+}
+
+// smoothRange updates the unknowns of colour c in [lo, hi) by x_u += (b_u − Σ_v A_uv x_v)/A_uu.
+// No two unknowns of one colour couple, so the order of the updates does not matter.
+func (f *fineLevel) smoothRange(lo, hi, c int) {
+	a := f.a
+	xAll := f.x
+	ends := a.RowPtr[lo+1 : hi+1]
+	x := f.x[lo:hi]
+	b := f.b[lo:hi]
+	inv := f.invDiag[lo:hi]
+	col := f.colour[lo:hi]
+	x, b, inv, col = x[:len(ends)], b[:len(ends)], inv[:len(ends)], col[:len(ends)]
+	start := a.RowPtr[lo]
+	for q, end := range ends {
+		if int(col[q]) != c {
+			start = end
+			continue
+		}
+		cols := a.Col[start:end]
+		vals := a.Val[start:end]
+		vals = vals[:len(cols)]
+		start = end
+		var s float64
+		for k, v := range cols {
+			s += vals[k] * xAll[v]
+		}
+		x[q] += (b[q] - s) * inv[q]
+	}
+}
+
+// residualRow writes r = b − A x for the unknowns of grid row j into the padded residual grid,
+// and 0 for the unknowns of the colour the smoothing updated last (their residual vanishes in
+// exact arithmetic). Unknowns that share a node share their P row, so the node holds the sum of
+// their residuals, which is what restriction needs.
+func (f *fineLevel) residualRow(j, skip int) {
+	a := f.a
+	lo, hi := int(f.rowStart[j]), int(f.rowStart[j+1])
+	ends := a.RowPtr[lo+1 : hi+1]
+	nodes := f.nodes[lo:hi]
+	b := f.b[lo:hi]
+	col := f.colour[lo:hi]
+	nodes, b, col = nodes[:len(ends)], b[:len(ends)], col[:len(ends)]
+	x, r := f.x, f.r
+	off := (j+1)*f.stride + 1 - j*f.nx // padded index of node k is k + off
+	start := a.RowPtr[lo]
+	prev := int32(-1)
+	for q, end := range ends {
+		k := int(nodes[q]) + off
+		if int(col[q]) == skip {
+			if nodes[q] != prev {
+				r[k] = 0
+			}
+			prev = nodes[q]
+			start = end
+			continue
+		}
+		cols := a.Col[start:end]
+		vals := a.Val[start:end]
+		vals = vals[:len(cols)]
+		start = end
+		var s float64
+		for m, v := range cols {
+			s += vals[m] * x[v]
+		}
+		if nodes[q] == prev {
+			r[k] += b[q] - s
+		} else {
+			r[k] = b[q] - s
+		}
+		prev = nodes[q]
+	}
+}
+
+// prolongRow adds the bilinear interpolation of the first coarse level's x to the unknowns of
+// grid row j. Node i of the row lies between coarse columns i>>1 and (i+1)>>1 (the same column
+// when i is even), and likewise for rows, so x_u += ¼ Σ of the four (possibly repeated) values.
+func (f *fineLevel) prolongRow(j int) {
+	lo, hi := int(f.rowStart[j]), int(f.rowStart[j+1])
+	nodes := f.nodes[lo:hi]
+	x := f.x[lo:hi]
+	x = x[:len(nodes)]
+	cs := f.coarse.sx
+	cx := f.coarse.x
+	j0, j1 := j>>1, (j+1)>>1
+	r0 := cx[(j0+1)*cs+1 : (j0+2)*cs]
+	r1 := cx[(j1+1)*cs+1 : (j1+2)*cs]
+	r1 = r1[:len(r0)]
+	base := j * f.nx
+	for q, k := range nodes {
+		i := int(k) - base
+		m := i >> 1
+		if i&1 == 0 {
+			x[q] += 0.5 * (r0[m] + r1[m])
+		} else {
+			x[q] += 0.25 * ((r0[m] + r0[m+1]) + (r1[m] + r1[m+1]))
+		}
+	}
+}
+
+// coarsen builds the first coarse level, A_c = Pᵀ A P, from the CSR rows.
+func (f *fineLevel) coarsen(mg *Multigrid) (*gridLevel, error) {
+	co := newGridLevel(f.nx/2+1, f.ny/2+1)
+	task := &galerkinTask{coarse: co, fineNY: f.ny, errs: make([]error, co.nblocks), active: make([]int, co.nblocks)}
+	task.entries = func(j int, visit func(i int, ent []stepEntry)) {
+		a := f.a
+		var buf [9]stepEntry
+		for u := int(f.rowStart[j]); u < int(f.rowStart[j+1]); u++ {
+			ent := buf[:0]
+			for k := a.RowPtr[u]; k < a.RowPtr[u+1]; k++ {
+				v := int(a.Col[k])
+				di, dj, _ := gridStep(int(f.nodes[v])-int(f.nodes[u]), f.nx) // checked by newFineLevel
+				ent = append(ent, stepEntry{int8(di), int8(dj), a.Val[k]})
+			}
+			visit(int(f.nodes[u])-j*f.nx, ent)
+		}
+	}
+	if err := task.run(mg); err != nil {
+		return nil, err
+	}
+	return co, nil
+}

@@ -1,0 +1,391 @@
+package solver
+
+import (
+	"fmt"
+)
+
+// Kernels of a coarse level, run block by block by gridLevel.runBlock.
+const (
+	gridInit     = iota // first step of a V-cycle from x = 0: x = b/A_kk on colour c, 0 elsewhere
+	gridSmooth          // Gauss–Seidel update of the nodes of colour c
+	gridResidual        // r = b − A x on every node and zeros on the padding
+	gridRestrict        // b = Pᵀ r_fine from the level above
+	gridProlong         // x += P x_coarse from the level below
+)
+
+// stencil holds the nine coefficients of a node's row on a coarse level: entry (dj+1)·3 + di+1
+// couples node (i, j) to node (i+di, j+dj); entry 4 is the diagonal.
+type stencil [9]float64
+
+// gridLevel is a coarse level of a Multigrid: a Galerkin nine-point operator on every node of
+// an nx × ny grid, stored with padding (one node left and below, two right and above, all zero)
+// so that no kernel tests for the grid's edge. Node (i, j) has index (j+1)·sx + i + 1. A node
+// that no unknown of the level above interpolates from is inactive: its row and its
+// coefficients in other rows are zero, invD is 0 and its x stays 0 after smoothing.
+type gridLevel struct {
+	nx, ny, sx int
+	st         []stencil
+	invD       []float64 // 1/A_kk at active nodes, 0 elsewhere
+	x, b       []float64
+	r          []float64 // residual, in this level's layout (shared with the other levels)
+	src        []float64 // residual of the level above, padded, rows of srcStride
+	srcStride  int
+	coarser    *gridLevel    // the level below, nil on the coarsest
+	dense      *denseInverse // the exact solve of the coarsest level, nil on the others
+	active     int           // number of active nodes
+	blockRows  int
+	nblocks    int
+
+	op, c int // the current run's kernel and colour
+}
+
+// newGridLevel allocates a level of nx × ny nodes.
+func newGridLevel(nx, ny int) *gridLevel {
+	sx := nx + 3
+	size := sx * (ny + 3)
+	lv := &gridLevel{
+		nx: nx, ny: ny, sx: sx,
+		st:   make([]stencil, size),
+		invD: make([]float64, size),
+		x:    make([]float64, size),
+		b:    make([]float64, size),
+	}
+	lv.blockRows = blockRowsFor(nx)
+	lv.nblocks = ceilDiv(ny, lv.blockRows)
+	return lv
+}
+
+// rows returns the grid rows of block blk.
+func (lv *gridLevel) rows(blk int) (j0, j1 int) {
+	j0 = blk * lv.blockRows
+	return j0, min(lv.ny, j0+lv.blockRows)
+}
+
+// runBlock runs the current kernel on block blk.
+func (lv *gridLevel) runBlock(blk int) {
+	j0, j1 := lv.rows(blk)
+	switch lv.op {
+	case gridInit:
+		for j := j0; j < j1; j++ {
+			lv.initRow(j)
+		}
+	case gridSmooth:
+		// Colour c holds the nodes with i ≡ c mod 2 and j ≡ c/2 mod 2.
+		for j := j0 + (j0^(lv.c>>1))&1; j < j1; j += 2 {
+			lv.smoothRow(j, lv.c&1)
+		}
+	case gridResidual:
+		if blk == 0 {
+			clear(lv.r[:lv.sx])
+		}
+		for j := j0; j < j1; j++ {
+			lv.residualRow(j)
+		}
+		if j1 == lv.ny {
+			clear(lv.r[(lv.ny+1)*lv.sx : (lv.ny+3)*lv.sx])
+		}
+	case gridRestrict:
+		for j := j0; j < j1; j++ {
+			lv.restrictRow(j)
+		}
+	case gridProlong:
+		for j := j0; j < j1; j++ {
+			lv.prolongRow(j)
+		}
+	}
+}
+
+// initRow sets x = b/A_kk on the nodes of colour c in row j and x = 0 on the others.
+func (lv *gridLevel) initRow(j int) {
+	row := (j+1)*lv.sx + 1
+	x := lv.x[row : row+lv.nx]
+	clear(x)
+	if j&1 != lv.c>>1 {
+		return
+	}
+	b := lv.b[row : row+lv.nx]
+	inv := lv.invD[row : row+lv.nx]
+	b, inv = b[:len(x)], inv[:len(x)]
+	for i := uint(lv.c & 1); i < uint(len(x)); i += 2 {
+		x[i] = b[i] * inv[i]
+	}
+}
+
+// rowSlices holds, for one grid row, the slices that a nine-point kernel reads: entry i of
+// m[a], c[a], p[a] is the x of node (i+a−1, j−1), (i+a−1, j) and (i+a−1, j+1).
+type rowSlices struct {
+	st      []stencil
+	m, c, p [3][]float64
+}
+
+// slicesAt returns the row slices of row j, all of length nx.
+func (lv *gridLevel) slicesAt(j int) rowSlices {
+	sx, n := lv.sx, lv.nx
+	row := (j+1)*sx + 1
+	var r rowSlices
+	r.st = lv.st[row : row+n]
+	for a := range 3 {
+		r.m[a] = lv.x[row-sx+a-1 : row-sx+a-1+n]
+		r.c[a] = lv.x[row+a-1 : row+a-1+n]
+		r.p[a] = lv.x[row+sx+a-1 : row+sx+a-1+n]
+	}
+	return r
+}
+
+// smoothRow updates the nodes i0, i0+2, … (i0 = 0 or 1) of row j by Gauss–Seidel,
+// x_k = (b_k − Σ_{d≠k} A_kd x_d)/A_kk; the neighbours all have other colours.
+func (lv *gridLevel) smoothRow(j, i0 int) {
+	r := lv.slicesAt(j)
+	row := (j+1)*lv.sx + 1
+	st := r.st
+	x := lv.x[row : row+lv.nx]
+	b := lv.b[row : row+lv.nx]
+	inv := lv.invD[row : row+lv.nx]
+	x, b, inv = x[:len(st)], b[:len(st)], inv[:len(st)]
+	m0, m1, m2 := r.m[0][:len(st)], r.m[1][:len(st)], r.m[2][:len(st)]
+	c0, c2 := r.c[0][:len(st)], r.c[2][:len(st)]
+	p0, p1, p2 := r.p[0][:len(st)], r.p[1][:len(st)], r.p[2][:len(st)]
+	for i := uint(i0 & 1); i < uint(len(st)); i += 2 {
+		s := &st[i]
+		t := (s[0]*m0[i] + s[1]*m1[i] + s[2]*m2[i]) + (s[3]*c0[i] + s[5]*c2[i]) + (s[6]*p0[i] + s[7]*p1[i] + s[8]*p2[i])
+		x[i] = (b[i] - t) * inv[i]
+	}
+}
+
+// residualRow writes r = b − A x for row j and zeros on the row's padding.
+func (lv *gridLevel) residualRow(j int) {
+	sl := lv.slicesAt(j)
+	n := lv.nx
+	row := (j+1)*lv.sx + 1
+	st := sl.st
+	b := lv.b[row : row+n]
+	rp := lv.r[row-1 : row+n+2]
+	rp[0], rp[n+1], rp[n+2] = 0, 0, 0
+	r := rp[1 : n+1]
+	b, r = b[:len(st)], r[:len(st)]
+	m0, m1, m2 := sl.m[0][:len(st)], sl.m[1][:len(st)], sl.m[2][:len(st)]
+	c0, c1, c2 := sl.c[0][:len(st)], sl.c[1][:len(st)], sl.c[2][:len(st)]
+	p0, p1, p2 := sl.p[0][:len(st)], sl.p[1][:len(st)], sl.p[2][:len(st)]
+	for i := range st {
+		s := &st[i]
+		t := (s[0]*m0[i] + s[1]*m1[i] + s[2]*m2[i]) + (s[3]*c0[i] + s[4]*c1[i] + s[5]*c2[i]) + (s[6]*p0[i] + s[7]*p1[i] + s[8]*p2[i])
+		r[i] = b[i] - t
+	}
+}
+
+// restrictRow computes b = Pᵀ r for row j from the residual of the level above: full weighting
+// of the nine fine nodes around fine node (2i, 2j), weights 1 at the centre, ½ on the edges and
+// ¼ at the corners. Fine rows 2j−1, 2j, 2j+1 are padded rows 2j, 2j+1, 2j+2, fine column 2i+a is
+// padded column 2i+a+1, so coarse node i reads padded columns k = 2i, 2i+1, 2i+2.
+func (lv *gridLevel) restrictRow(j int) {
+	sf := lv.srcStride
+	row := (j+1)*lv.sx + 1
+	b := lv.b[row : row+lv.nx]
+	// Column k+a of fine row r as f[r][a][k], every slice of the same length.
+	var f [3][3][]float64
+	for r := range 3 {
+		base := (2*j + r) * sf
+		for a := range 3 {
+			f[r][a] = lv.src[base+a : base+sf]
+		}
+	}
+	n := len(f[0][2])
+	m0, m1, m2 := f[0][0][:n], f[0][1][:n], f[0][2][:n]
+	c0, c1, c2 := f[1][0][:n], f[1][1][:n], f[1][2][:n]
+	p0, p1, p2 := f[2][0][:n], f[2][1][:n], f[2][2][:n]
+	for i := range b {
+		k := 2 * i
+		if k >= n {
+			break
+		}
+		b[i] = c1[k] + 0.5*((c0[k]+c2[k])+(m1[k]+p1[k])) + 0.25*((m0[k]+m2[k])+(p0[k]+p2[k]))
+	}
+}
+
+// prolongRow adds the bilinear interpolation of the level below to row j: node i of the row
+// lies between coarse columns i>>1 and (i+1)>>1 (the same one when i is even), and likewise
+// for rows (see fineLevel.prolongRow). Inactive nodes receive values too; no active row couples
+// to them and the smoothing that follows resets them to 0.
+func (lv *gridLevel) prolongRow(j int) {
+	co := lv.coarser
+	cs := co.sx
+	row := (j+1)*lv.sx + 1
+	x := lv.x[row : row+lv.nx]
+	j0, j1 := j>>1, (j+1)>>1
+	r0 := co.x[(j0+1)*cs+1 : (j0+2)*cs]
+	r1 := co.x[(j1+1)*cs+1 : (j1+2)*cs]
+	r1 = r1[:len(r0)]
+	prolongPairs(x, r0, r1)
+}
+
+// prolongPairs adds to the fine row x the bilinear interpolation between the coarse rows r0 and
+// r1 (the same row for an even fine row): fine node 2m takes the mean of r0[m] and r1[m], fine
+// node 2m+1 the mean of the four values at m and m+1.
+func prolongPairs(x, r0, r1 []float64) {
+	xo := x[min(1, len(x)):] // odd nodes: xo[2m] is node 2m+1
+	xe := x[:len(xo)]        // even nodes with an odd node after them
+	ra := r0[min(1, len(r0)):]
+	rb := r1[min(1, len(r1)):]
+	r0, r1 = r0[:len(ra)], r1[:len(ra)]
+	rb = rb[:len(ra)]
+	for m := range ra {
+		i := 2 * m
+		if i >= len(xo) {
+			break
+		}
+		xe[i] += 0.5 * (r0[m] + r1[m])
+		xo[i] += 0.25 * ((r0[m] + ra[m]) + (r1[m] + rb[m]))
+	}
+	if n := len(x); n%2 == 1 {
+		// The last node is even: x[n−1] from coarse column (n−1)/2 alone.
+		m := (n - 1) / 2
+		x[n-1] += 0.5 * (r0[m] + r1[m])
+	}
+}
+
+// coarsen builds the level below lv, A_c = Pᵀ A P.
+func (lv *gridLevel) coarsen(mg *Multigrid) (*gridLevel, error) {
+	co := newGridLevel(lv.nx/2+1, lv.ny/2+1)
+	task := &galerkinTask{coarse: co, fineNY: lv.ny, errs: make([]error, co.nblocks), active: make([]int, co.nblocks)}
+	task.entries = func(j int, visit func(i int, ent []stepEntry)) {
+		var buf [9]stepEntry
+		for i := range lv.nx {
+			k := (j+1)*lv.sx + i + 1
+			if lv.invD[k] == 0 {
+				continue
+			}
+			ent := buf[:0]
+			for d, a := range lv.st[k] {
+				if a != 0 {
+					ent = append(ent, stepEntry{int8(d%3 - 1), int8(d/3 - 1), a})
+				}
+			}
+			visit(i, ent)
+		}
+	}
+	if err := task.run(mg); err != nil {
+		return nil, err
+	}
+	return co, nil
+}
+
+// stepEntry is one coefficient a of a fine row, coupling its node to the node (di, dj) away.
+type stepEntry struct {
+	di, dj int8
+	a      float64
+}
+
+// galerkinTask computes a coarse level's operator A_c = Pᵀ A P from the rows of the level above,
+// block by block of coarse rows. Each block walks the fine rows that interpolate from its
+// coarse rows (neighbouring blocks share one fine row) and adds every contribution to a coarse
+// entry in the order of the fine nodes, so the result does not depend on the blocks.
+type galerkinTask struct {
+	coarse *gridLevel
+	fineNY int
+	// entries calls visit for every active node of fine row j, in increasing i, with its
+	// row's coefficients.
+	entries func(j int, visit func(i int, ent []stepEntry))
+	errs    []error
+	active  []int
+}
+
+// run computes the coarse operator and checks its diagonal.
+func (t *galerkinTask) run(mg *Multigrid) error {
+	co := t.coarse
+	mg.team.run(t, co.nblocks, co.nx*co.ny < mg.minParallel)
+	for b, err := range t.errs {
+		if err != nil {
+			return err
+		}
+		co.active += t.active[b]
+	}
+	return nil
+}
+
+// runBlock computes the rows of block blk of the coarse operator.
+func (t *galerkinTask) runBlock(blk int) {
+	co := t.coarse
+	j0, j1 := co.rows(blk)
+	for j := max(0, 2*j0-1); j < min(t.fineNY, 2*j1); j++ {
+		t.entries(j, func(i int, ent []stepEntry) { co.addGalerkin(i, j, ent, j0, j1) })
+	}
+	for j := j0; j < j1; j++ {
+		for i := range co.nx {
+			k := (j+1)*co.sx + i + 1
+			s := &co.st[k]
+			if *s == (stencil{}) {
+				continue
+			}
+			if d := s[4]; !(d > 0) || !isFinite(d) {
+				t.errs[blk] = fmt.Errorf("solver: multigrid: coarse level of %d × %d nodes: diagonal at node (%d, %d) must be positive, got %g", co.nx, co.ny, i, j, d)
+				return
+			}
+			co.invD[k] = 1 / s[4]
+			t.active[blk]++
+		}
+	}
+}
+
+// addGalerkin adds the contributions of fine node (i, j), whose row has coefficients ent, to the
+// coarse rows j0 ≤ J < j1: A_c(C, D) += P(u, C) · (A P)(u, D).
+func (co *gridLevel) addGalerkin(i, j int, ent []stepEntry, j0, j1 int) {
+	if (j+1)>>1 < j0 || j>>1 >= j1 {
+		return
+	}
+	// ap is row u of A P on the coarse nodes (bx+a, by+b), 0 ≤ a, b ≤ 2: every neighbour v of
+	// u interpolates from coarse column iv/2 (weight 1) when iv is even, from columns ⌊iv/2⌋
+	// and ⌈iv/2⌉ (½ each) when it is odd, and from rows likewise.
+	bx, by := i>>1-1, j>>1-1
+	var ap [3][3]float64
+	for _, e := range ent {
+		iv, jv := i+int(e.di), j+int(e.dj)
+		x, y := iv>>1-bx, jv>>1-by
+		switch iv&1 | (jv&1)<<1 {
+		case 0:
+			ap[y][x] += e.a
+		case 1:
+			q := 0.5 * e.a
+			ap[y][x] += q
+			ap[y][x+1] += q
+		case 2:
+			q := 0.5 * e.a
+			ap[y][x] += q
+			ap[y+1][x] += q
+		default:
+			q := 0.25 * e.a
+			ap[y][x] += q
+			ap[y][x+1] += q
+			ap[y+1][x] += q
+			ap[y+1][x+1] += q
+		}
+	}
+	// P(u, C): 1 for a coincident coarse node, ½ for each of two, ¼ for each of four. A parent
+	// at column bx + d (d = 1 or 2) takes the entries of ap with a − d in [−1, 1], at stencil
+	// column a − d + 1; likewise for rows.
+	type parent struct {
+		d int // offset from bx (or by): 1 or 2
+		w float64
+	}
+	px := [2]parent{{1, 1}}
+	if i&1 == 1 {
+		px = [2]parent{{1, 0.5}, {2, 0.5}}
+	}
+	py := [2]parent{{1, 1}}
+	if j&1 == 1 {
+		py = [2]parent{{1, 0.5}, {2, 0.5}}
+	}
+	for _, cy := range py[:1+j&1] {
+		if r := by + cy.d; r < j0 || r >= j1 {
+			continue
+		}
+		for _, cx := range px[:1+i&1] {
+			w := cx.w * cy.w
+			s := &co.st[(by+cy.d+1)*co.sx+bx+cx.d+1]
+			for b := cy.d - 1; b <= min(2, cy.d+1); b++ {
+				for a := cx.d - 1; a <= min(2, cx.d+1); a++ {
+					s[(b-cy.d+1)*3+a-cx.d+1] += w * ap[b][a]
+				}
+			}
+		}
+	}
+}

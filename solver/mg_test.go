@@ -1,0 +1,903 @@
+package solver
+
+import (
+	"context"
+	"math"
+	"math/rand/v2"
+	"runtime"
+	"slices"
+	"testing"
+
+	"gonum.org/v1/gonum/mat"
+
+	"phipsi/bc"
+	"phipsi/mesh"
+)
+
+// mgPassage is a channel geometry the multigrid tests and benchmarks solve ψ on.
+type mgPassage struct {
+	name           string
+	length, height float64 // the grid's extent: x in [0, length], y in [0, height]
+	geometry       func() (*mesh.Geometry, error)
+}
+
+// mgStraight returns straight walls at y = 0 and y = height over [0, length].
+func mgStraight(length, height float64) (*mesh.Wall, *mesh.Wall, error) {
+	lower, err := mesh.NewWall([]mesh.Point{{X: 0, Y: 0}, {X: length, Y: 0}}, false, false)
+	if err != nil {
+		return nil, nil, err
+	}
+	upper, err := mesh.NewWall([]mesh.Point{{X: 0, Y: height}, {X: length, Y: height}}, false, true)
+	return lower, upper, err
+}
+
+// mgCylinder returns a channel 5 long and 1 high with a cylinder of diameter 0.4 near its middle,
+// offset by irrational fractions of a cell so that no grid line is tangent to it.
+func mgCylinder(y, radius float64) mgPassage {
+	return mgPassage{"cylinder", 5, 1, func() (*mesh.Geometry, error) {
+		lower, upper, err := mgStraight(5, 1)
+		if err != nil {
+			return nil, err
+		}
+		c := mesh.Point{X: 2.5 + 1/(100*math.Pi), Y: y + math.Sqrt2/1000}
+		return &mesh.Geometry{Length: 5, Lower: lower, Upper: upper,
+			Bodies: []mesh.Body{{Name: "cylinder", Shape: mesh.NewCircle(c, radius)}}}, nil
+	}}
+}
+
+var (
+	mgPassageCylinder = mgCylinder(0.5, 0.2)
+	// mgPassageStep is a forward-facing step: the lower wall rises from 0 to 0.5 halfway along.
+	mgPassageStep = mgPassage{"step", 6, 1, func() (*mesh.Geometry, error) {
+		lower, err := mesh.NewWall([]mesh.Point{{X: 0, Y: 0}, {X: 3, Y: 0}, {X: 3, Y: 0.5}, {X: 6, Y: 0.5}}, false, false)
+		if err != nil {
+			return nil, err
+		}
+		_, upper, err := mgStraight(6, 1)
+		return &mesh.Geometry{Length: 6, Lower: lower, Upper: upper}, err
+	}}
+	// mgPassageFoil is a NACA 2412 section of unit chord at 4° in a channel 2 high.
+	mgPassageFoil = mgPassage{"foil", 5, 2, func() (*mesh.Geometry, error) {
+		lower, upper, err := mgStraight(5, 2)
+		if err != nil {
+			return nil, err
+		}
+		foil, err := mesh.NACA4("2412", 1, mesh.Point{X: 1.5, Y: 1}, 4*math.Pi/180, 120)
+		return &mesh.Geometry{Length: 5, Lower: lower, Upper: upper,
+			Bodies: []mesh.Body{{Name: "foil", Shape: foil}}}, err
+	}}
+	mgPassages = []mgPassage{mgPassageCylinder, mgPassageStep, mgPassageFoil}
+)
+
+// mesh builds the passage on a grid of about the given number of cells.
+func (p mgPassage) mesh(tb testing.TB, cells int) *mesh.Mesh {
+	tb.Helper()
+	geo, err := p.geometry()
+	if err != nil {
+		tb.Fatal(err)
+	}
+	g, err := mesh.PlanGrid(p.length, 0, p.height, math.Sqrt(p.length*p.height/float64(cells)))
+	if err != nil {
+		tb.Fatal(err)
+	}
+	m, err := mesh.Build(geo, g)
+	if err != nil {
+		tb.Fatal(err)
+	}
+	return m
+}
+
+// psi assembles the passage's ψ system on about the given number of cells, with unit inflow
+// speed and every body at zero circulation.
+func (p mgPassage) psi(tb testing.TB, cells int) *PsiSystem {
+	tb.Helper()
+	m := p.mesh(tb, cells)
+	s, err := bc.New(m, 1, make([]bc.Body, len(m.Geom.Bodies)))
+	if err != nil {
+		tb.Fatal(err)
+	}
+	sys, err := AssemblePsi(m, s)
+	if err != nil {
+		tb.Fatal(err)
+	}
+	return sys
+}
+
+const (
+	// mgMaxIterations bounds BiCGStab+multigrid steps to a relative residual of 1e-10 on the ψ
+	// systems (measured 5–8 from 4k to 4M cells). Jacobi-preconditioned BiCGStab needs hundreds
+	// at these sizes, so a hierarchy that stopped working would fail it.
+	mgMaxIterations = 12
+	// mgMaxIterationsCG bounds CG+multigrid iterations on the symmetric systems (measured 9–15).
+	mgMaxIterationsCG = 18
+)
+
+// mgFlat reports whether iteration counts are flat in the sense of the speed target: the finest
+// grid needs at most 1.5 times the coarsest grid's count plus 2.
+func mgFlat(iters []int) bool {
+	return float64(iters[len(iters)-1]) <= 1.5*float64(iters[0])+2
+}
+
+// mgSizes returns the grid sizes (cells) of a flatness test: three in -short mode, four otherwise.
+func mgSizes() []int {
+	if testing.Short() {
+		return []int{4000, 16000, 62000}
+	}
+	return []int{4000, 16000, 62000, 250000}
+}
+
+func TestMultigridPsiIterationsFlat(t *testing.T) {
+	passages := append(slices.Clone(mgPassages),
+		// A thin gap: the cylinder 0.02 (1 to 5 cells) above the lower wall.
+		mgPassage{"cylinder-gap", 5, 1, mgCylinder(0.22, 0.2).geometry})
+	for _, p := range passages {
+		t.Run(p.name, func(t *testing.T) {
+			var iters []int
+			for _, cells := range mgSizes() {
+				sys := p.psi(t, cells)
+				mg, err := NewMultigrid(sys.A, sys.Mesh.Grid, sys.Nodes, MGOptions{})
+				if err != nil {
+					t.Fatal(err)
+				}
+				worst := 0
+				for k, b := range append([][]float64{sys.B0}, sys.BK...) {
+					x := make([]float64, len(b))
+					st, err := BiCGStab(context.Background(), sys.A, b, x, mg, nil)
+					if err != nil {
+						t.Fatalf("%d cells, right-hand side %d: %v", sys.Mesh.Grid.Cells(), k, err)
+					}
+					worst = max(worst, st.Iterations)
+				}
+				if worst > mgMaxIterations {
+					t.Errorf("%d cells (levels %v): %d iterations, want <= %d", sys.Mesh.Grid.Cells(), mg.Levels(), worst, mgMaxIterations)
+				}
+				iters = append(iters, worst)
+			}
+			if !mgFlat(iters) {
+				t.Errorf("iterations %v over %v cells: finest %d, want <= 1.5 × %d + 2", iters, mgSizes(), iters[len(iters)-1], iters[0])
+			}
+		})
+	}
+}
+
+func TestMultigridPsiMatchesJacobi(t *testing.T) {
+	const (
+		// solveTol is the residual both solves are asked for; with cond(A) below 1e5 on these
+		// grids the two solutions then agree to about 1e-8 relative at worst.
+		solveTol = 1e-13
+		// agreeTol is the required agreement max|x_mg − x_jacobi| / max|x_jacobi|.
+		agreeTol = 1e-8
+	)
+	for _, p := range mgPassages {
+		t.Run(p.name, func(t *testing.T) {
+			sys := p.psi(t, 6000)
+			mg, err := NewMultigrid(sys.A, sys.Mesh.Grid, sys.Nodes, MGOptions{})
+			if err != nil {
+				t.Fatal(err)
+			}
+			set := &Settings{Tolerance: solveTol}
+			for k, b := range append([][]float64{sys.B0}, sys.BK...) {
+				xm := make([]float64, len(b))
+				if _, err := BiCGStab(context.Background(), sys.A, b, xm, mg, set); err != nil {
+					t.Fatal(err)
+				}
+				xj := make([]float64, len(b))
+				if _, err := BiCGStab(context.Background(), sys.A, b, xj, NewJacobi(sys.A), set); err != nil {
+					t.Fatal(err)
+				}
+				if d := mgMaxDiff(xm, xj) / mgMaxAbs(xj); d > agreeTol {
+					t.Errorf("right-hand side %d: relative difference %.3g, want <= %g", k, d, agreeTol)
+				}
+			}
+		})
+	}
+}
+
+func TestSolvePsiMultigrid(t *testing.T) {
+	// agreeTol is the required agreement of the body constant and the field between the
+	// multigrid and the Jacobi method, each solved to the default 1e-10 (cond(A) < 1e5 here).
+	const agreeTol = 1e-5
+	sys := mgPassageCylinder.psi(t, 8000)
+	ref, err := SolvePsi(context.Background(), sys, MethodKrylov, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, method := range []string{MethodMG, MethodAuto} {
+		sol, err := SolvePsi(context.Background(), sys, method, nil)
+		if err != nil {
+			t.Fatalf("%s: %v", method, err)
+		}
+		if d := math.Abs(sol.BodyPsi[0] - ref.BodyPsi[0]); d > agreeTol*sys.BC.Q {
+			t.Errorf("%s: body ψ %.10g, want %.10g (Jacobi) within %g", method, sol.BodyPsi[0], ref.BodyPsi[0], agreeTol*sys.BC.Q)
+		}
+		if d := mgMaxDiff(sol.Psi, ref.Psi); d > agreeTol*sys.BC.Q {
+			t.Errorf("%s: ψ differs from Jacobi's by %.3g, want <= %g", method, d, agreeTol*sys.BC.Q)
+		}
+		for _, st := range sol.Solves {
+			if st.Iterations > mgMaxIterations {
+				t.Errorf("%s: %d iterations, want <= %d", method, st.Iterations, mgMaxIterations)
+			}
+		}
+	}
+}
+
+// mgSPD returns a symmetric positive definite matrix on the unknowns of a ψ system: −1 between
+// neighbouring unknowns, and a diagonal that adds 1/θ for every arm (θ = 1 for a whole link),
+// so rows next to a boundary or a known node are strictly dominant.
+func mgSPD(sys *PsiSystem) *CSR {
+	m := sys.Mesh
+	g := m.Grid
+	bld := NewBuilder(len(sys.Nodes), 5*len(sys.Nodes))
+	steps := [4][2]int{{1, 0}, {-1, 0}, {0, 1}, {0, -1}}
+	for _, node := range sys.Nodes {
+		k := int(node)
+		i, j := k%g.NX, k/g.NX
+		arms, _ := m.Arms(k)
+		var diag float64
+		for d, arm := range arms {
+			diag += 1 / arm.Theta
+			ni, nj := i+steps[d][0], j+steps[d][1]
+			if arm.Boundary != mesh.NoBoundary || ni < 0 || ni >= g.NX || nj < 0 || nj >= g.NY {
+				continue
+			}
+			if v := sys.Unknown[g.Index(ni, nj)]; v >= 0 {
+				bld.Add(int(v), -1)
+			}
+		}
+		bld.Add(int(sys.Unknown[k]), diag)
+		bld.EndRow()
+	}
+	return bld.CSR()
+}
+
+// mgSlit returns a symmetric positive definite graph Laplacian on an nx × ny grid cut by a slit
+// along row ny/2 from column nx/4 to 3nx/4: each node of the slit carries two unknowns, one
+// joined to the nodes above and one to those below (as a thin plate splits a dual cell). The
+// last column is held at zero through an extra 1 on its diagonal.
+func mgSlit(nx, ny int) (*CSR, mesh.Grid, []int32) {
+	g := mesh.Grid{H: 1, NX: nx, NY: ny}
+	js, i0, i1 := ny/2, nx/4, 3*nx/4
+	slit := func(i, j int) bool { return j == js && i >= i0 && i <= i1 }
+	first := make([]int, g.Len()) // first unknown of each node
+	var nodes []int32
+	for k := range g.Len() {
+		first[k] = len(nodes)
+		nodes = append(nodes, int32(k))
+		if slit(k%nx, k/nx) {
+			nodes = append(nodes, int32(k))
+		}
+	}
+	// piece returns the unknown of node (i, j) seen from a neighbour at row jn: the upper
+	// piece of a slit node from above, the lower one otherwise.
+	piece := func(i, j, jn int) int {
+		u := first[g.Index(i, j)]
+		if slit(i, j) && jn > j {
+			u++
+		}
+		return u
+	}
+	type edge struct{ u, v int }
+	var edges []edge
+	for j := range ny {
+		for i := range nx {
+			if i+1 < nx {
+				edges = append(edges, edge{piece(i, j, j), piece(i+1, j, j)})
+				if slit(i, j) && slit(i+1, j) {
+					edges = append(edges, edge{piece(i, j, j+1), piece(i+1, j, j+1)})
+				}
+			}
+			if j+1 < ny {
+				edges = append(edges, edge{piece(i, j, j+1), piece(i, j+1, j)})
+			}
+		}
+	}
+	n := len(nodes)
+	rows := make([][]edge, n)
+	for _, e := range edges {
+		rows[e.u] = append(rows[e.u], e)
+		rows[e.v] = append(rows[e.v], edge{e.v, e.u})
+	}
+	bld := NewBuilder(n, 5*n)
+	for u := range n {
+		diag := float64(len(rows[u]))
+		if int(nodes[u])%nx == nx-1 {
+			diag++
+		}
+		bld.Add(u, diag)
+		for _, e := range rows[u] {
+			bld.Add(e.v, -1)
+		}
+		bld.EndRow()
+	}
+	return bld.CSR(), g, nodes
+}
+
+func TestMultigridSymmetricCG(t *testing.T) {
+	const (
+		// symTol bounds |y·M⁻¹x − x·M⁻¹y| / (‖x‖‖M⁻¹y‖): rounding in the V-cycle only.
+		symTol = 1e-12
+		// asymMin is the asymmetry the non-symmetric V-cycle must show on the same matrix, so
+		// that the symmetry check can fail.
+		asymMin = 1e-6
+	)
+	type problem struct {
+		name string
+		make func(cells int) (*CSR, mesh.Grid, []int32)
+	}
+	var problems []problem
+	for _, p := range mgPassages {
+		problems = append(problems, problem{p.name, func(cells int) (*CSR, mesh.Grid, []int32) {
+			sys := p.psi(t, cells)
+			return mgSPD(sys), sys.Mesh.Grid, sys.Nodes
+		}})
+	}
+	rng := rand.New(rand.NewPCG(3, 5))
+	for _, p := range problems {
+		t.Run(p.name, func(t *testing.T) {
+			var iters []int
+			for s, cells := range mgSizes() {
+				a, g, nodes := p.make(cells)
+				mg, err := NewMultigrid(a, g, nodes, MGOptions{Symmetric: true})
+				if err != nil {
+					t.Fatal(err)
+				}
+				if s == 0 {
+					x, y := randVec(rng, a.N), randVec(rng, a.N)
+					if asym := mgAsymmetry(mg, x, y); asym > symTol {
+						t.Errorf("symmetric V-cycle: asymmetry %.3g, want <= %g", asym, symTol)
+					}
+					mx := make([]float64, a.N)
+					for range 5 {
+						x := randVec(rng, a.N)
+						if err := mg.PreconSolve(mx, x); err != nil {
+							t.Fatal(err)
+						}
+						if q := dot(x, mx); !(q > 0) {
+							t.Errorf("x·M⁻¹x = %g, want > 0", q)
+						}
+					}
+					plain, err := NewMultigrid(a, g, nodes, MGOptions{})
+					if err != nil {
+						t.Fatal(err)
+					}
+					if asym := mgAsymmetry(plain, x, y); asym < asymMin {
+						t.Errorf("non-symmetric V-cycle: asymmetry %.3g, want >= %g (the check cannot fail)", asym, asymMin)
+					}
+				}
+				b := randVec(rng, a.N)
+				x := make([]float64, a.N)
+				st, err := CG(context.Background(), a, b, x, mg, nil)
+				if err != nil {
+					t.Fatalf("%d unknowns: %v", a.N, err)
+				}
+				if st.Iterations > mgMaxIterationsCG {
+					t.Errorf("%d unknowns (levels %v): %d iterations, want <= %d", a.N, mg.Levels(), st.Iterations, mgMaxIterationsCG)
+				}
+				iters = append(iters, st.Iterations)
+			}
+			if !mgFlat(iters) {
+				t.Errorf("iterations %v: finest %d, want <= 1.5 × %d + 2", iters, iters[len(iters)-1], iters[0])
+			}
+		})
+	}
+}
+
+// TestMultigridSharedNodes solves a slit problem in which the nodes of the slit carry two
+// unknowns each. Coarse levels hold one value per node, so they cannot represent the jump across
+// the slit, and the iteration count grows slowly with the grid (measured 24, 36, 50 CG
+// iterations at 4k, 16k, 62k cells); it must stay far below Jacobi-preconditioned CG's
+// (279, 549, 1022), and the V-cycle must stay symmetric.
+func TestMultigridSharedNodes(t *testing.T) {
+	const (
+		// minSpeedup is the least ratio of Jacobi-CG to multigrid-CG iterations (measured 12–20).
+		minSpeedup = 8
+		// symTol bounds the V-cycle's asymmetry (rounding only).
+		symTol = 1e-12
+	)
+	rng := rand.New(rand.NewPCG(8, 1))
+	for _, cells := range mgSizes()[:3] {
+		nx := int(math.Sqrt(float64(cells)))
+		a, g, nodes := mgSlit(nx+1, nx/2+1)
+		mg, err := NewMultigrid(a, g, nodes, MGOptions{Symmetric: true})
+		if err != nil {
+			t.Fatal(err)
+		}
+		if asym := mgAsymmetry(mg, randVec(rng, a.N), randVec(rng, a.N)); asym > symTol {
+			t.Errorf("%d cells: asymmetry %.3g, want <= %g", cells, asym, symTol)
+		}
+		b := randVec(rng, a.N)
+		x := make([]float64, a.N)
+		st, err := CG(context.Background(), a, b, x, mg, nil)
+		if err != nil {
+			t.Fatalf("%d cells: %v", cells, err)
+		}
+		clear(x)
+		jac, err := CG(context.Background(), a, b, x, NewJacobi(a), nil)
+		if err != nil {
+			t.Fatalf("%d cells, Jacobi: %v", cells, err)
+		}
+		if st.Iterations*minSpeedup > jac.Iterations {
+			t.Errorf("%d cells: %d iterations against Jacobi's %d, want at most 1/%d of them", cells, st.Iterations, jac.Iterations, minSpeedup)
+		}
+	}
+}
+
+// mgAsymmetry returns |y·M⁻¹x − x·M⁻¹y| / (‖x‖‖M⁻¹y‖).
+func mgAsymmetry(mg *Multigrid, x, y []float64) float64 {
+	mx := make([]float64, len(x))
+	my := make([]float64, len(x))
+	if err := mg.PreconSolve(mx, x); err != nil {
+		panic(err)
+	}
+	if err := mg.PreconSolve(my, y); err != nil {
+		panic(err)
+	}
+	return math.Abs(dot(y, mx)-dot(x, my)) / (norm(x) * norm(my))
+}
+
+// mgRandomGrid returns a random non-symmetric five-point M-matrix on the nodes of an nx × ny grid
+// that are not in a hole, and the nodes of its unknowns.
+func mgRandomGrid(rng *rand.Rand, nx, ny int, hole func(i, j int) bool) (*CSR, mesh.Grid, []int32) {
+	g := mesh.Grid{H: 1, NX: nx, NY: ny}
+	unknown := make([]int, g.Len())
+	var nodes []int32
+	for k := range unknown {
+		unknown[k] = -1
+		if !hole(k%nx, k/nx) {
+			unknown[k] = len(nodes)
+			nodes = append(nodes, int32(k))
+		}
+	}
+	bld := NewBuilder(len(nodes), 5*len(nodes))
+	for u, k := range nodes {
+		i, j := int(k)%nx, int(k)/nx
+		diag := 0.1 + rng.Float64()
+		for _, s := range [4][2]int{{1, 0}, {-1, 0}, {0, 1}, {0, -1}} {
+			c := 0.5 + rng.Float64()
+			diag += c
+			ni, nj := i+s[0], j+s[1]
+			if ni >= 0 && ni < nx && nj >= 0 && nj < ny && unknown[g.Index(ni, nj)] >= 0 {
+				bld.Add(unknown[g.Index(ni, nj)], -c)
+			}
+		}
+		bld.Add(u, diag)
+		bld.EndRow()
+	}
+	return bld.CSR(), g, nodes
+}
+
+// TestMultigridGalerkin checks the first two coarse operators against P^T A P formed densely from
+// bilinear interpolation written out independently: coarse node (I, J) at fine (2I, 2J),
+// P(u, C) = w(i − 2I)·w(j − 2J), w(0) = 1, w(±1) = ½.
+func TestMultigridGalerkin(t *testing.T) {
+	// galerkinTol is the allowed difference relative to the largest coarse entry: the two
+	// computations add the same terms in different orders.
+	const galerkinTol = 1e-13
+	rng := rand.New(rand.NewPCG(1, 2))
+	hole := func(i, j int) bool { return (i-6)*(i-6)+(j-5)*(j-5) < 6 || (j == 0 && i < 3) }
+	for _, dims := range [][2]int{{17, 11}, {18, 12}, {16, 9}} {
+		a, g, nodes := mgRandomGrid(rng, dims[0], dims[1], hole)
+		mg, err := NewMultigrid(a, g, nodes, MGOptions{Coarsest: 4})
+		if err != nil {
+			t.Fatal(err)
+		}
+		if len(mg.levels) < 2 {
+			t.Fatalf("%v: %d coarse levels, want >= 2", dims, len(mg.levels))
+		}
+		// The fine operator on the full grid (zero rows and columns off the unknowns).
+		fine := mat.NewDense(g.Len(), g.Len(), nil)
+		for u := range a.N {
+			for k := a.RowPtr[u]; k < a.RowPtr[u+1]; k++ {
+				fine.Set(int(nodes[u]), int(nodes[a.Col[k]]), a.Val[k])
+			}
+		}
+		nx, ny := g.NX, g.NY
+		for l, lv := range mg.levels[:2] {
+			if lv.nx != nx/2+1 || lv.ny != ny/2+1 {
+				t.Fatalf("%v level %d: %d × %d nodes, want %d × %d", dims, l+1, lv.nx, lv.ny, nx/2+1, ny/2+1)
+			}
+			p := mat.NewDense(nx*ny, lv.nx*lv.ny, nil)
+			w := func(d int) float64 { return [3]float64{0.5, 1, 0.5}[d+1] }
+			for j := range ny {
+				for i := range nx {
+					for jc := range lv.ny {
+						for ic := range lv.nx {
+							if di, dj := i-2*ic, j-2*jc; di >= -1 && di <= 1 && dj >= -1 && dj <= 1 {
+								p.Set(j*nx+i, jc*lv.nx+ic, w(di)*w(dj))
+							}
+						}
+					}
+				}
+			}
+			var ap, want mat.Dense
+			ap.Mul(fine, p)
+			want.Mul(p.T(), &ap)
+			scale := mat.Norm(&want, math.Inf(1))
+			got := mat.NewDense(lv.nx*lv.ny, lv.nx*lv.ny, nil)
+			active := 0
+			for jc := range lv.ny {
+				for ic := range lv.nx {
+					k := (jc+1)*lv.sx + ic + 1
+					if lv.invD[k] != 0 {
+						active++
+					}
+					for e, v := range lv.st[k] {
+						di, dj := e%3-1, e/3-1
+						if v != 0 {
+							got.Set(jc*lv.nx+ic, (jc+dj)*lv.nx+ic+di, v)
+						}
+					}
+				}
+			}
+			var diff mat.Dense
+			diff.Sub(got, &want)
+			if d := mat.Norm(&diff, math.Inf(1)); d > galerkinTol*scale {
+				t.Errorf("%v level %d: ‖A_c − PᵀAP‖∞ = %.3g, want <= %.3g", dims, l+1, d, galerkinTol*scale)
+			}
+			// Active nodes are those with a non-zero column in P restricted to the unknowns.
+			wantActive := 0
+			for c := range lv.nx * lv.ny {
+				for f := range nx * ny {
+					if p.At(f, c) != 0 && fine.At(f, f) != 0 {
+						wantActive++
+						break
+					}
+				}
+			}
+			if active != wantActive || lv.active != wantActive {
+				t.Errorf("%v level %d: %d active nodes (counted %d), want %d", dims, l+1, active, lv.active, wantActive)
+			}
+			fine, nx, ny = got, lv.nx, lv.ny
+		}
+	}
+}
+
+func TestMultigridExactOnSmallSystems(t *testing.T) {
+	// exactTol bounds ‖r − A M⁻¹ r‖/‖r‖ for a dense solve of a well-conditioned matrix.
+	const exactTol = 1e-12
+	rng := rand.New(rand.NewPCG(9, 9))
+	nonsym, g, nodes := mgRandomGrid(rng, 12, 10, func(i, j int) bool { return i == 5 && j > 2 && j < 7 })
+	spd, gs, nodesS := mgSlit(12, 9)
+	for _, c := range []struct {
+		name      string
+		a         *CSR
+		g         mesh.Grid
+		nodes     []int32
+		symmetric bool
+	}{
+		{"non-symmetric", nonsym, g, nodes, false},
+		{"symmetric", spd, gs, nodesS, true},
+	} {
+		mg, err := NewMultigrid(c.a, c.g, c.nodes, MGOptions{Coarsest: c.a.N, Symmetric: c.symmetric})
+		if err != nil {
+			t.Fatal(err)
+		}
+		if got := mg.Levels(); len(got) != 1 {
+			t.Fatalf("%s: levels %v, want the fine level alone", c.name, got)
+		}
+		r := randVec(rng, c.a.N)
+		x := make([]float64, c.a.N)
+		if err := mg.PreconSolve(x, r); err != nil {
+			t.Fatal(err)
+		}
+		if res := trueRelResidual(c.a, r, x); res > exactTol {
+			t.Errorf("%s: residual of the direct solve %.3g, want <= %g", c.name, res, exactTol)
+		}
+	}
+}
+
+func TestDenseInverseSingular(t *testing.T) {
+	// pinvTol bounds ‖b − A x‖/‖b‖ for a consistent singular system solved by the pseudo-inverse.
+	const pinvTol = 1e-12
+	// A path-graph Laplacian (singular: constants are its null space) with one row duplicated
+	// as a dependent unknown.
+	const m = 6
+	a := mat.NewDense(m, m, nil)
+	for i := range m - 1 {
+		a.Set(i, i, a.At(i, i)+1)
+		a.Set(i+1, i+1, a.At(i+1, i+1)+1)
+		a.Set(i, i+1, -1)
+		a.Set(i+1, i, -1)
+	}
+	idx := []int32{0, 1, 2, 3, 4, 5}
+	d, err := newDenseInverse(a, idx, true)
+	if err != nil {
+		t.Fatal(err)
+	}
+	b := []float64{1, -2, 0.5, 0.25, 0.75, -0.5} // sums to zero: in the range of A
+	x := make([]float64, m)
+	d.solveTo(x, b)
+	ax := mat.NewVecDense(m, nil)
+	ax.MulVec(a, mat.NewVecDense(m, x))
+	var num, den float64
+	for i := range m {
+		num += (b[i] - ax.AtVec(i)) * (b[i] - ax.AtVec(i))
+		den += b[i] * b[i]
+	}
+	if res := math.Sqrt(num / den); !(res <= pinvTol) {
+		t.Errorf("residual %.3g, want <= %g", res, pinvTol)
+	}
+}
+
+// TestMultigridSingularCoarseLevels solves the 1D Laplacian on one-node-wide strips along odd
+// grid rows: the two coarse rows beside a strip interpolate to the same fine unknowns only, so
+// the coarse operators are singular. With two strips on 7 rows the coarsest level is regular
+// again; with one strip on 3 rows every level, the coarsest included, is singular and the
+// coarsest is solved by its pseudo-inverse.
+func TestMultigridSingularCoarseLevels(t *testing.T) {
+	// maxIters bounds the iterations to 1e-10 (measured 4–7 for these 1D problems).
+	const maxIters = 12
+	rng := rand.New(rand.NewPCG(4, 4))
+	for _, c := range []struct {
+		ny   int
+		rows []int
+	}{{7, []int{1, 5}}, {3, []int{1}}} {
+		nx := 301
+		g := mesh.Grid{H: 1, NX: nx, NY: c.ny}
+		var nodes []int32
+		for _, j := range c.rows {
+			for i := range nx {
+				nodes = append(nodes, int32(j*nx+i))
+			}
+		}
+		bld := NewBuilder(len(nodes), 3*len(nodes))
+		for u, k := range nodes {
+			i := int(k) % nx
+			if i > 0 {
+				bld.Add(u-1, -1)
+			}
+			bld.Add(u, 2)
+			if i < nx-1 {
+				bld.Add(u+1, -1)
+			}
+			bld.EndRow()
+		}
+		a := bld.CSR()
+		for _, symmetric := range []bool{false, true} {
+			mg, err := NewMultigrid(a, g, nodes, MGOptions{Symmetric: symmetric, Coarsest: 40})
+			if err != nil {
+				t.Fatal(err)
+			}
+			b := randVec(rng, a.N)
+			x := make([]float64, a.N)
+			var st Stats
+			if symmetric {
+				st, err = CG(context.Background(), a, b, x, mg, nil)
+			} else {
+				st, err = BiCGStab(context.Background(), a, b, x, mg, nil)
+			}
+			if err != nil {
+				t.Fatalf("%d rows, symmetric %v, levels %v: %v", c.ny, symmetric, mg.Levels(), err)
+			}
+			if st.Iterations > maxIters {
+				t.Errorf("%d rows, symmetric %v, levels %v: %d iterations, want <= %d", c.ny, symmetric, mg.Levels(), st.Iterations, maxIters)
+			}
+		}
+	}
+}
+
+func TestMultigridNoAllocation(t *testing.T) {
+	sys := mgPassageCylinder.psi(t, 16000)
+	defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(2))
+	for _, symmetric := range []bool{false, true} {
+		mg, err := NewMultigrid(sys.A, sys.Mesh.Grid, sys.Nodes, MGOptions{Symmetric: symmetric})
+		if err != nil {
+			t.Fatal(err)
+		}
+		mg.minParallel = 0 // every level on two goroutines
+		dst := make([]float64, sys.A.N)
+		if allocs := testing.AllocsPerRun(10, func() { _ = mg.PreconSolve(dst, sys.B0) }); allocs != 0 {
+			t.Errorf("symmetric %v: %v allocations per PreconSolve, want 0", symmetric, allocs)
+		}
+	}
+}
+
+func TestMultigridSameBitsAnyThreads(t *testing.T) {
+	sys := mgPassageFoil.psi(t, 16000)
+	defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(0))
+	var ref []float64
+	for _, procs := range []int{1, 2, 3} {
+		runtime.GOMAXPROCS(procs)
+		mg, err := NewMultigrid(sys.A, sys.Mesh.Grid, sys.Nodes, MGOptions{})
+		if err != nil {
+			t.Fatal(err)
+		}
+		mg.minParallel = 0
+		x := make([]float64, sys.A.N)
+		if _, err := BiCGStab(context.Background(), sys.A, sys.B0, x, mg, nil); err != nil {
+			t.Fatal(err)
+		}
+		if ref == nil {
+			ref = x
+			continue
+		}
+		for q := range x {
+			if math.Float64bits(x[q]) != math.Float64bits(ref[q]) {
+				t.Fatalf("GOMAXPROCS %d: x[%d] = %v, want %v (GOMAXPROCS 1), bit for bit", procs, q, x[q], ref[q])
+			}
+		}
+	}
+}
+
+// TestMultigridFusedSameBits checks that the fused passes of the finest level, serial or split
+// into chunks, compute exactly what the separate steps compute.
+func TestMultigridFusedSameBits(t *testing.T) {
+	sys := mgPassageStep.psi(t, 16000)
+	spd := mgSPD(sys)
+	defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(0))
+	for _, c := range []struct {
+		name      string
+		a         *CSR
+		symmetric bool
+	}{{"psi", sys.A, false}, {"spd", spd, true}} {
+		mg, err := NewMultigrid(c.a, sys.Mesh.Grid, sys.Nodes, MGOptions{Symmetric: c.symmetric})
+		if err != nil {
+			t.Fatal(err)
+		}
+		mg.minParallel = 0
+		want := make([]float64, c.a.N)
+		runtime.GOMAXPROCS(1)
+		mg.unfused = true
+		if err := mg.PreconSolve(want, sys.B0); err != nil {
+			t.Fatal(err)
+		}
+		mg.unfused = false
+		got := make([]float64, c.a.N)
+		for _, procs := range []int{1, 2, 5} {
+			runtime.GOMAXPROCS(procs)
+			if err := mg.PreconSolve(got, sys.B0); err != nil {
+				t.Fatal(err)
+			}
+			for q := range got {
+				if math.Float64bits(got[q]) != math.Float64bits(want[q]) {
+					t.Fatalf("%s, GOMAXPROCS %d: fused V-cycle gives %v at %d, want %v (separate steps), bit for bit", c.name, procs, got[q], q, want[q])
+				}
+			}
+		}
+	}
+}
+
+// mgNinePoint returns the bilinear finite-element Laplacian (8/3 on the diagonal, −1/3 to all
+// eight neighbours) on the nodes of an nx × ny grid outside a hole, with the nodes beyond the
+// grid and in the hole held at zero: a symmetric positive definite nine-point matrix.
+func mgNinePoint(nx, ny int, hole func(i, j int) bool) (*CSR, mesh.Grid, []int32) {
+	g := mesh.Grid{H: 1, NX: nx, NY: ny}
+	unknown := make([]int, g.Len())
+	var nodes []int32
+	for k := range unknown {
+		unknown[k] = -1
+		if !hole(k%nx, k/nx) {
+			unknown[k] = len(nodes)
+			nodes = append(nodes, int32(k))
+		}
+	}
+	bld := NewBuilder(len(nodes), 9*len(nodes))
+	for u, k := range nodes {
+		i, j := int(k)%nx, int(k)/nx
+		bld.Add(u, 8.0/3)
+		for dj := -1; dj <= 1; dj++ {
+			for di := -1; di <= 1; di++ {
+				ni, nj := i+di, j+dj
+				if (di != 0 || dj != 0) && ni >= 0 && ni < nx && nj >= 0 && nj < ny && unknown[g.Index(ni, nj)] >= 0 {
+					bld.Add(unknown[g.Index(ni, nj)], -1.0/3)
+				}
+			}
+		}
+		bld.EndRow()
+	}
+	return bld.CSR(), g, nodes
+}
+
+// TestMultigridSmootherVariants runs the paths the ψ and φ systems do not take by default: two
+// sweeps per side, and nine-point rows on the finest level (four colours there).
+func TestMultigridSmootherVariants(t *testing.T) {
+	rng := rand.New(rand.NewPCG(2, 7))
+	hole := func(i, j int) bool { return (i-60)*(i-60)+(j-25)*(j-25) < 100 }
+	nine, g9, nodes9 := mgNinePoint(161, 51, hole)
+	sys := mgPassageCylinder.psi(t, 16000)
+	for _, c := range []struct {
+		name      string
+		a         *CSR
+		g         mesh.Grid
+		nodes     []int32
+		o         MGOptions
+		colours   int
+		symmetric bool
+	}{
+		{"psi two sweeps", sys.A, sys.Mesh.Grid, sys.Nodes, MGOptions{Smooth: 2}, 2, false},
+		{"nine-point", nine, g9, nodes9, MGOptions{Symmetric: true}, 4, true},
+		{"nine-point two sweeps", nine, g9, nodes9, MGOptions{Symmetric: true, Smooth: 2}, 4, true},
+	} {
+		mg, err := NewMultigrid(c.a, c.g, c.nodes, c.o)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if mg.fine.ncolour != c.colours {
+			t.Errorf("%s: %d colours on the finest level, want %d", c.name, mg.fine.ncolour, c.colours)
+		}
+		b := randVec(rng, c.a.N)
+		x := make([]float64, c.a.N)
+		var st Stats
+		if c.symmetric {
+			if asym := mgAsymmetry(mg, randVec(rng, c.a.N), randVec(rng, c.a.N)); asym > 1e-12 {
+				t.Errorf("%s: asymmetry %.3g, want <= 1e-12 (rounding)", c.name, asym)
+			}
+			st, err = CG(context.Background(), c.a, b, x, mg, nil)
+		} else {
+			st, err = BiCGStab(context.Background(), c.a, b, x, mg, nil)
+		}
+		if err != nil {
+			t.Fatalf("%s: %v", c.name, err)
+		}
+		if st.Iterations > mgMaxIterations {
+			t.Errorf("%s: %d iterations, want <= %d", c.name, st.Iterations, mgMaxIterations)
+		}
+	}
+}
+
+func TestMultigridRejects(t *testing.T) {
+	rng := rand.New(rand.NewPCG(6, 6))
+	none := func(i, j int) bool { return false }
+	t.Run("far coupling", func(t *testing.T) {
+		a, g, nodes := mgRandomGrid(rng, 30, 30, none)
+		a.Col[a.RowPtr[100]] = int32(100 + 2*30) // two rows up
+		slices.Sort(a.Col[a.RowPtr[100]:a.RowPtr[101]])
+		if _, err := NewMultigrid(a, g, nodes, MGOptions{Coarsest: 10}); err == nil {
+			t.Error("no error for a coupling two grid steps away")
+		}
+	})
+	t.Run("wrapped coupling", func(t *testing.T) {
+		// Node (29, 3) coupled to node (0, 4): one index apart, across the grid's edge.
+		a, g, nodes := mgRandomGrid(rng, 30, 30, none)
+		u := 3*30 + 29
+		lo, hi := a.RowPtr[u], a.RowPtr[u+1]
+		a.Col[hi-1] = int32(u + 1)
+		slices.Sort(a.Col[lo:hi])
+		if _, err := NewMultigrid(a, g, nodes, MGOptions{Coarsest: 10}); err == nil {
+			t.Error("no error for a coupling across the grid's edge")
+		}
+	})
+	t.Run("diagonal", func(t *testing.T) {
+		a, g, nodes := mgRandomGrid(rng, 30, 30, none)
+		for k := a.RowPtr[7]; k < a.RowPtr[8]; k++ {
+			if a.Col[k] == 7 {
+				a.Val[k] = -1
+			}
+		}
+		if _, err := NewMultigrid(a, g, nodes, MGOptions{Coarsest: 10}); err == nil {
+			t.Error("no error for a negative diagonal entry")
+		}
+	})
+	a, g, nodes := mgRandomGrid(rng, 10, 10, none)
+	expectPanic(t, "len(nodes)", func() { _, _ = NewMultigrid(a, g, nodes[1:], MGOptions{}) })
+	swapped := slices.Clone(nodes)
+	swapped[3], swapped[4] = swapped[4], swapped[3]
+	expectPanic(t, "non-decreasing", func() { _, _ = NewMultigrid(a, g, swapped, MGOptions{}) })
+	expectPanic(t, "outside", func() { _, _ = NewMultigrid(a, mesh.Grid{NX: 5, NY: 5}, nodes, MGOptions{}) })
+	expectPanic(t, "must be >= 0", func() { _, _ = NewMultigrid(a, g, nodes, MGOptions{Smooth: -1}) })
+	mg, err := NewMultigrid(a, g, nodes, MGOptions{Coarsest: 10})
+	if err != nil {
+		t.Fatal(err)
+	}
+	x := make([]float64, a.N)
+	expectPanic(t, "len(dst)", func() { _ = mg.PreconSolve(x[1:], x) })
+	expectPanic(t, "same slice", func() { _ = mg.PreconSolve(x, x) })
+}
+
+// mgMaxDiff returns max_i |x_i − y_i|.
+func mgMaxDiff(x, y []float64) float64 {
+	var d float64
+	for i := range x {
+		d = math.Max(d, math.Abs(x[i]-y[i]))
+	}
+	return d
+}
+
+// mgMaxAbs returns max_i |x_i|.
+func mgMaxAbs(x []float64) float64 {
+	var d float64
+	for _, v := range x {
+		d = math.Max(d, math.Abs(v))
+	}
+	return d
+}
