@@ -6,42 +6,96 @@ import (
 	"phipsi/mesh"
 )
 
-// contour is a closed staircase of grid links around one body: each link joins a node inside the
-// staircase (In) to one outside it (Out). Both ends of every link, and every node between the
-// staircase and the body, are regular: fluid unknowns with four whole links.
+// contour measures a body's circulation Γ = ∮ v·ds (counter-clockwise positive) as a linear
+// function of the nodal ψ and the body's own constant: Γ = Σ W[m]·ψ(Nodes[m]) + Self·ψ_body.
 //
-// The circulation Γ = ∮ v·ds (counter-clockwise positive) equals −∮ ∂ψ/∂n ds with n pointing away
-// from the body, and the five-point flux sum over the staircase gives it as
+// The preferred form is a closed staircase of grid links around the body, each joining a node
+// inside it to one outside, both ends and every node between the staircase and the body regular
+// (fluid unknowns with four whole links). Γ equals −∮ ∂ψ/∂n ds with n pointing away from the body,
+// and the five-point flux sum over the staircase gives it as Γ = Σ (ψ_in − ψ_out). Because every
+// node between two such staircases satisfies the five-point equation, the sum is the same on any
+// of them: it is exact for the discrete solution, whatever staircase is chosen.
 //
-//	Γ = Σ (ψ_In − ψ_Out).
-//
-// Because every node between two such staircases satisfies the five-point equation, the sum is the
-// same on any of them: it is a property of the discrete solution, not of the contour chosen.
+// Where no such staircase exists (a body within a few cells of a wall or another body), Γ is the
+// integral of the surface velocity −∂ψ/∂n from the harmonic fits at the body's surface samples,
+// accurate to second order but no longer exact.
 type contour struct {
-	In, Out []int32
+	Nodes []int32
+	W     []float64
+	Self  float64
+	Exact bool // a staircase
 }
 
-// circulation returns Γ of the full field psi (indexed by node).
-func (c contour) circulation(psi []float64) float64 {
-	s := 0.0
-	for q := range c.In {
-		s += psi[c.In[q]] - psi[c.Out[q]]
+// circulation returns Γ of the full field psi (indexed by node) with the body's constant c.
+func (c contour) circulation(psi []float64, body float64) float64 {
+	s := c.Self * body
+	for q, k := range c.Nodes {
+		s += c.W[q] * psi[k]
 	}
 	return s
 }
 
-// circulationOf returns Γ of an unknown vector x of sys.
-func (c contour) circulationOf(sys *PsiSystem, x []float64) float64 {
+// circulationOf returns Γ of superposition field j (see PsiSystem.fieldValue) of body b.
+func (c contour) circulationOf(sys *PsiSystem, x []float64, j, b int) float64 {
 	s := 0.0
-	for q := range c.In {
-		s += x[sys.Unknown[c.In[q]]] - x[sys.Unknown[c.Out[q]]]
+	if j == b {
+		s = c.Self
+	}
+	for q, k := range c.Nodes {
+		s += c.W[q] * sys.fieldValue(x, j, int(k))
 	}
 	return s
 }
 
-// staircase finds a contour around body b: the body's nodes (solid, pinned, or with an arm to
+// bodyContour returns the staircase around body b, or the surface integral where none exists.
+func bodyContour(sys *PsiSystem, b int) (contour, error) {
+	if c, ok := staircase(sys, b); ok {
+		return c, nil
+	}
+	return surfaceContour(sys, b)
+}
+
+// surfaceContour builds Γ = Σ_i W_i·(−∇ψ·n)_i over the body's surface samples at spacing H, each
+// gradient a harmonic-fit stencil (HarmonicStencil), collected into one weight per node.
+func surfaceContour(sys *PsiSystem, b int) (contour, error) {
+	m := sys.Mesh
+	h := m.Grid.H
+	weight := map[int32]float64{}
+	var order []int32
+	c := contour{}
+	missed := 0.0
+	pts := m.Geom.Bodies[b].Shape.Sample(h)
+	for _, sp := range pts {
+		st, ok := HarmonicStencil(m, sp.P, sp.P.Add(sp.N.Scale(1e-7*h)), true)
+		if !ok {
+			missed += sp.W
+			continue
+		}
+		for q, k := range st.Nodes {
+			if _, seen := weight[k]; !seen {
+				order = append(order, k)
+			}
+			weight[k] -= sp.W * (st.GX[q]*sp.N.X + st.GY[q]*sp.N.Y)
+		}
+		c.Self -= sp.W * (st.CX*sp.N.X + st.CY*sp.N.Y)
+	}
+	total := 0.0
+	for _, sp := range pts {
+		total += sp.W
+	}
+	if missed > 0.05*total {
+		return contour{}, fmt.Errorf("body %q: neither a ring of regular nodes nor enough fluid nodes at its surface to measure its circulation; refine the grid", m.Geom.Bodies[b].Name)
+	}
+	for _, k := range order {
+		c.Nodes = append(c.Nodes, k)
+		c.W = append(c.W, weight[k])
+	}
+	return c, nil
+}
+
+// staircase finds a staircase around body b: the body's nodes (solid, pinned, or with an arm to
 // it) dilated by a margin of 2 nodes, else 1, 3 or 4, the first whose ring is regular.
-func staircase(sys *PsiSystem, b int) (contour, error) {
+func staircase(sys *PsiSystem, b int) (contour, bool) {
 	m := sys.Mesh
 	g := m.Grid
 	id := mesh.BodyID(b)
@@ -66,7 +120,7 @@ func staircase(sys *PsiSystem, b int) (contour, error) {
 		}
 	}
 	if len(core) == 0 {
-		return contour{}, fmt.Errorf("body %q: no grid node lies inside or next to it; refine the grid", m.Geom.Bodies[b].Name)
+		return contour{}, false
 	}
 	regular := func(k int) bool {
 		if k < 0 || k >= g.Len() || sys.Unknown[k] < 0 {
@@ -102,7 +156,7 @@ func staircase(sys *PsiSystem, b int) (contour, error) {
 			isCore[at(k%g.NX, k/g.NX)] = true
 		}
 		ok := true
-		var c contour
+		c := contour{Exact: true}
 		for j := v0; j <= v1 && ok; j++ {
 			for i := w0; i <= w1 && ok; i++ {
 				if !in[at(i, j)] {
@@ -123,14 +177,14 @@ func staircase(sys *PsiSystem, b int) (contour, error) {
 						ok = false
 						break
 					}
-					c.In = append(c.In, int32(k))
-					c.Out = append(c.Out, int32(nk))
+					c.Nodes = append(c.Nodes, int32(k), int32(nk))
+					c.W = append(c.W, 1, -1)
 				}
 			}
 		}
-		if ok && len(c.In) > 0 {
-			return c, nil
+		if ok && len(c.Nodes) > 0 {
+			return c, true
 		}
 	}
-	return contour{}, fmt.Errorf("body %q: no closed ring of regular fluid nodes around it (it is within a few cells of a wall, another body, the inlet or the outlet); move it or refine the grid", m.Geom.Bodies[b].Name)
+	return contour{}, false
 }

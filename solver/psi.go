@@ -216,7 +216,7 @@ func SolvePsi(ctx context.Context, sys *PsiSystem, method string, set *Settings)
 	}
 	contours := make([]contour, len(m.Geom.Bodies))
 	for b := range contours {
-		if contours[b], err = staircase(sys, b); err != nil {
+		if contours[b], err = bodyContour(sys, b); err != nil {
 			return nil, err
 		}
 	}
@@ -276,7 +276,11 @@ func SolvePsi(ctx context.Context, sys *PsiSystem, method string, set *Settings)
 	sol.Psi = sys.expand(x, sol.BodyPsi)
 	sol.Circulation = make([]float64, len(m.Geom.Bodies))
 	for b := range sol.Circulation {
-		sol.Circulation[b] = contours[b].circulation(sol.Psi)
+		c := 0.0 // a body with prescribed boundary data has no constant (and always a staircase in tests)
+		if b < len(sol.BodyPsi) {
+			c = sol.BodyPsi[b]
+		}
+		sol.Circulation[b] = contours[b].circulation(sol.Psi, c)
 	}
 	return sol, nil
 }
@@ -289,9 +293,9 @@ func (sys *PsiSystem) closureRow(b int, c contour, x0 []float64, xk [][]float64)
 	}
 	row := make([]float64, len(xk))
 	for j := range xk {
-		row[j] = c.circulationOf(sys, xk[j])
+		row[j] = c.circulationOf(sys, xk[j], j, b)
 	}
-	return row, cond.Circulation - c.circulationOf(sys, x0), nil
+	return row, cond.Circulation - c.circulationOf(sys, x0, -1, b), nil
 }
 
 // solverFor returns the linear solve of the chosen method.

@@ -8,13 +8,14 @@ import (
 
 // AdverseThreshold is the rate of pressure rise along a wall, dCp/d(x/H) with H the inlet height,
 // above which a stretch is reported as adverse: a rise of 5 % of the dynamic pressure per channel
-// height. StrongAdverse is the rise of Cp over one stretch above which a warning is raised: ideal
-// flow cannot show separation, and a boundary layer asked to recover more than about a third of
-// the dynamic pressure is at risk (a screening threshold of our own, in the spirit of the common
-// practice of limiting diffuser pressure recovery).
+// height. StrongAdverse is the recovery over one stretch, as a fraction of the local dynamic
+// pressure where the stretch starts, above which a warning is raised: ideal flow cannot show
+// separation, and a wall boundary layer asked to give up more than half of its dynamic pressure
+// is at risk (a screening threshold of our own, in the spirit of the common practice of limiting
+// diffuser pressure recovery).
 const (
 	AdverseThreshold = 0.05
-	StrongAdverse    = 0.3
+	StrongAdverse    = 0.5
 )
 
 // Stretch is an x-range of a wall where the pressure rises downstream faster than
@@ -23,7 +24,13 @@ type Stretch struct {
 	X0, X1  float64 // m
 	CpRise  float64 // Cp at X1 minus Cp at X0
 	MaxGrad float64 // largest dCp/dx in the stretch, 1/m
+	// Recovery is the pressure rise as a fraction of the local dynamic pressure at X0,
+	// CpRise/(1 − Cp(X0)) = (p₁ − p₀)/(½ρV₀²).
+	Recovery float64
 }
+
+// Strong reports whether the stretch recovers more than StrongAdverse of its dynamic pressure.
+func (s Stretch) Strong() bool { return s.Recovery > StrongAdverse }
 
 // AdverseStretches returns the adverse stretches of wall id (0 lower, 1 upper).
 func (r *Result) AdverseStretches(id int) []Stretch {
@@ -49,6 +56,7 @@ func (r *Result) AdverseStretches(id int) []Stretch {
 			}
 			cur.X1 = b.P.X
 			cur.CpRise = b.Cp - cp0
+			cur.Recovery = cur.CpRise / (1 - cp0)
 			cur.MaxGrad = math.Max(cur.MaxGrad, g)
 		} else {
 			cur = nil

@@ -58,9 +58,8 @@ func Derive(sol *solver.PsiSolution, fl Fluid) (*Result, error) {
 	m := sys.Mesh
 	r := &Result{Sol: sol, Fluid: fl, Speed: sys.BC.Speed, Q: sys.BC.Q}
 	r.Field = velocityField(sol, fl)
-	fit := newFitter(m, sol.Psi)
 	for id := range m.NumBoundaries() {
-		s, err := r.surface(fit, id)
+		s, err := r.surface(id)
 		if err != nil {
 			return nil, err
 		}
@@ -81,7 +80,7 @@ func (r *Result) Pressure(speed float64) float64 {
 }
 
 // surface samples boundary id and fits ψ about every sample.
-func (r *Result) surface(fit *fitter, id int) (Surface, error) {
+func (r *Result) surface(id int) (Surface, error) {
 	m := r.Sol.Sys.Mesh
 	h := m.Grid.H
 	s := Surface{Name: m.BoundaryName(id), Boundary: id}
@@ -90,7 +89,7 @@ func (r *Result) surface(fit *fitter, id int) (Surface, error) {
 			continue
 		}
 		eye := sp.P.Add(sp.N.Scale(1e-7 * h))
-		gx, gy, _, ok := fit.gradient(sp.P, true, r.Sol.BoundaryValue(id, sp.P), eye)
+		gx, gy, ok := gradient(m, r.Sol.Psi, sp.P, eye, true, r.Sol.BoundaryValue(id, sp.P))
 		if !ok {
 			continue // a sample in a corner no fluid node can see: nothing honest to report
 		}

@@ -115,8 +115,7 @@ func (r *Result) Probe(name string, p mesh.Point) (ProbeValue, error) {
 	if !m.InFluid(p) {
 		return ProbeValue{}, fmt.Errorf("probe %q at (%g, %g) is not in the fluid", name, p.X, p.Y)
 	}
-	fit := newFitter(m, r.Sol.Psi)
-	gx, gy, _, ok := fit.gradient(p, false, 0, p)
+	gx, gy, ok := gradient(m, r.Sol.Psi, p, p, false, 0)
 	if !ok {
 		return ProbeValue{}, fmt.Errorf("probe %q at (%g, %g): too few fluid nodes around it; refine the grid", name, p.X, p.Y)
 	}

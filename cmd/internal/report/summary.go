@@ -241,8 +241,8 @@ func NewSummary(in Input) (*Summary, error) {
 			MaxAdverseGradientAt: pt(w.MaxAdverseAt), AdverseStretches: []StretchInfo{}, AdverseThreshold: flow.AdverseThreshold}
 		for _, st := range r.AdverseStretches(id) {
 			info.AdverseStretches = append(info.AdverseStretches, StretchInfo{X0: st.X0, X1: st.X1, CpRise: st.CpRise, MaxGradient: st.MaxGrad})
-			if st.CpRise > flow.StrongAdverse {
-				s.warnf("%s wall: pressure rises by %.2f of the dynamic pressure from x = %.3g to %.3g m (adverse gradient): a real boundary layer may separate there, which ideal flow cannot show", w.Name, st.CpRise, st.X0, st.X1)
+			if st.Strong() {
+				s.warnf("%s wall: pressure rises by %.0f %% of the local dynamic pressure from x = %.3g to %.3g m (adverse gradient): a real boundary layer may separate there, which ideal flow cannot show", w.Name, 100*st.Recovery, st.X0, st.X1)
 			}
 		}
 		s.Walls = append(s.Walls, info)
