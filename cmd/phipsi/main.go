@@ -4,8 +4,9 @@
 //
 // Usage:
 //
-//	phipsi run SCENARIO.toml [--out DIR] [--spacing H] [--method M] [--tolerance T] [--quiet] [--json]
+//	phipsi run SCENARIO.toml [--out DIR] [--spacing H] [--method M] [--tolerance T] [--with-error] [--quiet] [--json]
 //	phipsi check SCENARIO.toml
+//	phipsi converge SCENARIO.toml [--levels N] [--ratio R] [--out DIR]
 //	phipsi version
 //
 // Exit status: 0 success, 1 any other failure, 2 bad command line, 3 invalid scenario, 4 the
@@ -79,6 +80,9 @@ const topUsage = `phipsi: ideal-flow checks of flow passages
 usage:
   phipsi run SCENARIO.toml [flags]     solve and write the summary, tables and pictures
   phipsi check SCENARIO.toml [flags]   validate, print the grid size and memory estimate
+  phipsi converge SCENARIO.toml [flags]
+                                       grid-convergence study: the key numbers on 3 grids,
+                                       their observed order, extrapolation and error band
   phipsi version                       print the version
 
 Run "phipsi COMMAND --help" for a command's flags.
@@ -88,13 +92,15 @@ Run "phipsi COMMAND --help" for a command's flags.
 func run(ctx context.Context, args []string, stdout, stderr io.Writer) error {
 	if len(args) == 0 {
 		io.WriteString(stderr, topUsage)
-		return &usageError{"no command given (run, check or version)"}
+		return &usageError{"no command given (run, check, converge or version)"}
 	}
 	switch args[0] {
 	case "run":
 		return runCmd(ctx, args[1:], stdout, stderr)
 	case "check":
 		return checkCmd(args[1:], stdout, stderr)
+	case "converge":
+		return convergeCmd(ctx, args[1:], stdout, stderr)
 	case "version", "--version":
 		fmt.Fprintf(stdout, "phipsi %s\n", version)
 		return nil
@@ -103,5 +109,5 @@ func run(ctx context.Context, args []string, stdout, stderr io.Writer) error {
 		return nil
 	}
 	io.WriteString(stderr, topUsage)
-	return &usageError{fmt.Sprintf("unknown command %q (run, check or version)", args[0])}
+	return &usageError{fmt.Sprintf("unknown command %q (run, check, converge or version)", args[0])}
 }

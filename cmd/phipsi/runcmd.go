@@ -29,6 +29,7 @@ type runOptions struct {
 	quiet     bool
 	json      bool
 	maxMemory byteSize
+	withError bool // run: grid-error bands from two extra, coarser solves
 }
 
 // load reads the scenario, applies the overrides and plans the grid within the memory bound.
@@ -95,6 +96,7 @@ func runCmd(ctx context.Context, args []string, stdout, stderr io.Writer) error 
 	fs.Float64Var(&o.spacing, "spacing", 0, "grid spacing in metres, overriding the scenario's")
 	fs.StringVar(&o.method, "method", "", "linear solver: auto, mgcg, cg or sor (default: the scenario's)")
 	fs.Float64Var(&o.tolerance, "tolerance", 0, "relative residual to stop at (default: the scenario's)")
+	fs.BoolVar(&o.withError, "with-error", false, "also solve on grids 2 and 4 times coarser and put grid-error bands (±) beside the key numbers")
 	fs.BoolVar(&o.quiet, "quiet", false, "no progress line and no console report")
 	fs.BoolVar(&o.json, "json", false, "print summary.json to stdout instead of the console report")
 	fs.Var(&o.maxMemory, "max-memory", "refuse a grid whose estimated memory exceeds this (default: half of physical memory)")
@@ -156,6 +158,11 @@ func runCmd(ctx context.Context, args []string, stdout, stderr io.Writer) error 
 		Result: res, Phi: phiSol, Mismatch: &mismatch, Probes: probes, Elapsed: time.Since(start)})
 	if err != nil {
 		return err
+	}
+	if o.withError {
+		if err := addErrorBands(ctx, sum, plan, res, probes, stderr, o.quiet); err != nil {
+			return err
+		}
 	}
 	out := o.out
 	if out == "" {

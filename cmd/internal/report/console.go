@@ -39,9 +39,12 @@ func WriteConsole(w io.Writer, s *Summary, outDir string) error {
 			if o.Kutta {
 				name += " (Kutta)"
 			}
-			fmt.Fprintf(tw, "  %s\t%.5g\t%.4g\t%.4f\t%s\t%.4f\t%.3g\t%.4g\t%.4g\t%.1f %%\t%s\t%.0f\t\n", name, o.Psi, clean(o.Circulation),
-				o.MaxSpeed/s.Flow.InletSpeed, pair(o.MaxSpeedAt), o.MinCp, clean(o.Force[0]), clean(o.Force[1]), clean(o.LiftKuttaJoukowski),
-				100*o.Blockage.Ratio, eps, o.CellsAcross)
+			eb := s.ErrorBands
+			fmt.Fprintf(tw, "  %s\t%.5g\t%.4g%s\t%.4f%s\t%s\t%.4f%s\t%.3g\t%.4g%s\t%.4g\t%.1f %%\t%s\t%.0f\t\n", name, o.Psi,
+				clean(o.Circulation), BandText(eb, o.Name+".circulation", 1),
+				o.MaxSpeed/s.Flow.InletSpeed, BandText(eb, o.Name+".max_speed", 1/s.Flow.InletSpeed), pair(o.MaxSpeedAt),
+				o.MinCp, BandText(eb, o.Name+".min_cp", 1), clean(o.Force[0]), clean(o.Force[1]), BandText(eb, o.Name+".lift", 1),
+				clean(o.LiftKuttaJoukowski), 100*o.Blockage.Ratio, eps, o.CellsAcross)
 		}
 		if err := tw.Flush(); err != nil {
 			return err
@@ -55,7 +58,8 @@ func WriteConsole(w io.Writer, s *Summary, outDir string) error {
 	}
 	fmt.Fprintln(tw, "  wall\tCp_min\tat x, y m\tCp_max\tat x, y m\tmax dCp/dx 1/m\tat x m\t")
 	for _, wl := range s.Walls {
-		fmt.Fprintf(tw, "  %s\t%.4f\t%s\t%.4f\t%s\t%.3g\t%.4g\t\n", wl.Name, clean(wl.MinCp), pair(wl.MinCpAt), clean(wl.MaxCp), pair(wl.MaxCpAt),
+		fmt.Fprintf(tw, "  %s\t%.4f%s\t%s\t%.4f\t%s\t%.3g\t%.4g\t\n", wl.Name, clean(wl.MinCp), BandText(s.ErrorBands, wl.Name+".min_cp", 1),
+			pair(wl.MinCpAt), clean(wl.MaxCp), pair(wl.MaxCpAt),
 			wl.MaxAdverseGradient, wl.MaxAdverseGradientAt[0])
 	}
 	if err := tw.Flush(); err != nil {
@@ -74,7 +78,9 @@ func WriteConsole(w io.Writer, s *Summary, outDir string) error {
 			if p.K != nil {
 				k = fmt.Sprintf("%.4f", *p.K)
 			}
-			fmt.Fprintf(tw, "  %s\t%s\t%.4g\t%.4g\t%.4g\t%.4f\t%.6g\t%.4g\t%s\t\n", p.Name, pair(p.At), p.U, clean(p.V), p.Speed, clean(p.Cp), p.Pressure, clean(p.DeltaP), k)
+			fmt.Fprintf(tw, "  %s\t%s\t%.4g\t%.4g\t%.4g%s\t%.4f%s\t%.6g\t%.4g\t%s\t\n", p.Name, pair(p.At), p.U, clean(p.V),
+				p.Speed, BandText(s.ErrorBands, "probe."+p.Name+".speed", 1), clean(p.Cp), BandText(s.ErrorBands, "probe."+p.Name+".cp", 1),
+				p.Pressure, clean(p.DeltaP), k)
 		}
 		if err := tw.Flush(); err != nil {
 			return err
@@ -83,6 +89,7 @@ func WriteConsole(w io.Writer, s *Summary, outDir string) error {
 	if c := s.Cavitation; c != nil {
 		fmt.Fprintf(&b, "\ncavitation  σ = %.4g, lowest Cp %.4f on %s at %s, margin σ + Cp_min = %.4g\n", c.Sigma, c.MinCp, c.MinCpOn, pair(c.MinCpAt), c.Margin)
 	}
+	writeBandNotes(&b, s.ErrorBands)
 	if len(s.Warnings) > 0 {
 		b.WriteString("\nwarnings\n")
 		for _, m := range s.Warnings {

@@ -32,6 +32,27 @@ type Summary struct {
 	Cavitation *CavitationInfo `json:"cavitation,omitempty"`
 	Warnings   []string        `json:"warnings"`
 	Caution    string          `json:"caution"`
+	// ErrorBands, with run --with-error, are grid-error bands of the key numbers.
+	ErrorBands *ErrorBands `json:"error_bands,omitempty"`
+}
+
+// ErrorBands are grid-error bands of a run's key numbers (run --with-error): the run's grid and
+// two coarser ones, studied as phipsi converge does (see GCIMethod). Values[0] of each quantity
+// is the number the summary reports; the quantities are named as in convergence.json.
+type ErrorBands struct {
+	Ratio      float64         `json:"ratio"`
+	Spacings   []float64       `json:"spacings"`
+	Quantities []QuantityStudy `json:"quantities"`
+}
+
+// Find returns the study of the quantity name, or nil.
+func (e *ErrorBands) Find(name string) *QuantityStudy {
+	for i := range e.Quantities {
+		if e.Quantities[i].Name == name {
+			return &e.Quantities[i]
+		}
+	}
+	return nil
 }
 
 // GridInfo describes the grid.
