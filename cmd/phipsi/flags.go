@@ -90,8 +90,7 @@ func newFlags(name, usage string, stdout io.Writer) *pflag.FlagSet {
 func parse(fs *pflag.FlagSet, args []string) (string, error) {
 	if err := fs.Parse(args); err != nil {
 		if err == pflag.ErrHelp {
-			fs.Usage()
-			return "", helpShown
+			return "", helpShown // pflag has printed the usage
 		}
 		return "", &usageError{fmt.Sprintf("%s: %v", fs.Name(), err)}
 	}

@@ -110,13 +110,66 @@ func runCmd(ctx context.Context, args []string, stdout, stderr io.Writer) error 
 		return err
 	}
 	sc := plan.Scenario
+	// The computation runs apart so that an interrupt is answered at once, whatever stage it
+	// falls in; it writes no file, so abandoning it leaves nothing behind. The solvers also watch
+	// ctx and stop within an iteration.
+	type outcome struct {
+		r   *computed
+		err error
+	}
+	done := make(chan outcome, 1)
+	go func() {
+		r, err := compute(ctx, plan, o, stderr)
+		done <- outcome{r, err}
+	}()
+	var c *computed
+	select {
+	case <-ctx.Done():
+		return ctx.Err()
+	case oc := <-done:
+		if oc.err != nil {
+			if ctx.Err() != nil {
+				return ctx.Err()
+			}
+			return oc.err
+		}
+		c = oc.r
+	}
+	c.sum.Solve.TotalSeconds = time.Since(start).Seconds()
+	out := o.out
+	if out == "" {
+		out = sc.Name + "-out"
+	}
+	if err := writeOutputs(ctx, out, sc, c); err != nil {
+		return err
+	}
+	switch {
+	case o.json:
+		return report.WriteJSON(stdout, c.sum)
+	case o.quiet:
+		return nil
+	}
+	return report.WriteConsole(stdout, c.sum, out)
+}
+
+// computed is everything a run produces before any file is written.
+type computed struct {
+	res    *flow.Result
+	phi    []float64
+	sum    *report.Summary
+	images []render.Image
+}
+
+// compute solves the planned scenario and derives every number and picture of the run.
+func compute(ctx context.Context, plan *scenario.Plan, o *runOptions, stderr io.Writer) (*computed, error) {
+	sc := plan.Scenario
 	m, set, err := plan.Build()
 	if err != nil {
-		return err
+		return nil, err
 	}
 	sys, err := solver.AssemblePsi(m, set)
 	if err != nil {
-		return err
+		return nil, err
 	}
 	settings := &solver.Settings{Tolerance: sc.Solver.Tolerance, MaxIterations: sc.Solver.MaxIterations}
 	prog := newProgress(stderr, o.quiet)
@@ -124,60 +177,55 @@ func runCmd(ctx context.Context, args []string, stdout, stderr io.Writer) error 
 	sol, err := solver.SolvePsi(ctx, sys, sc.Solver.Method, settings)
 	prog.done()
 	if err != nil {
-		return err
-	}
-	if err := ctx.Err(); err != nil {
-		return err
+		return nil, err
 	}
 	res, err := flow.Derive(sol, flow.Fluid{Density: sc.Fluid.Density, Pressure: sc.Inflow.Pressure})
 	if err != nil {
-		return err
+		return nil, err
+	}
+	if err := ctx.Err(); err != nil {
+		return nil, err
 	}
 	phiSys, err := solver.AssemblePhi(m, set, sol.Circulation, nil)
 	if err != nil {
-		return err
+		return nil, err
 	}
+	prog.stage = "velocity potential"
 	phiSol, err := solver.SolvePhi(ctx, phiSys, sc.Solver.Method, settings)
 	prog.done()
 	if err != nil {
-		return err
+		return nil, err
 	}
 	mismatch, err := flow.Mismatch(res, phiSol)
 	if err != nil {
-		return err
+		return nil, err
 	}
 	var probes []flow.ProbeValue
 	for _, p := range sc.Probes {
 		v, err := res.Probe(p.Name, mesh.Point{X: p.At[0], Y: p.At[1]})
 		if err != nil {
-			return err
+			return nil, err
 		}
 		probes = append(probes, v)
 	}
 	sum, err := report.NewSummary(report.Input{Version: version, Scenario: sc, Method: methodName(sc.Solver.Method),
-		Result: res, Phi: phiSol, Mismatch: &mismatch, Probes: probes, Elapsed: time.Since(start)})
+		Result: res, Phi: phiSol, Mismatch: &mismatch, Probes: probes})
 	if err != nil {
-		return err
+		return nil, err
 	}
 	if o.withError {
 		if err := addErrorBands(ctx, sum, plan, res, probes, stderr, o.quiet); err != nil {
-			return err
+			return nil, err
 		}
 	}
-	out := o.out
-	if out == "" {
-		out = sc.Name + "-out"
+	if err := ctx.Err(); err != nil {
+		return nil, err
 	}
-	if err := writeOutputs(ctx, out, sc, res, phiSol.Phi, sum); err != nil {
-		return err
+	images, err := render.Render(res, phiSol.Phi, render.Options{Width: sc.Output.ImageWidth, Title: sc.Title, Images: sc.Output.Images})
+	if err != nil {
+		return nil, err
 	}
-	switch {
-	case o.json:
-		return report.WriteJSON(stdout, sum)
-	case o.quiet:
-		return nil
-	}
-	return report.WriteConsole(stdout, sum, out)
+	return &computed{res: res, phi: phiSol.Phi, sum: sum, images: images}, nil
 }
 
 // methodName says what a scenario's method name means for the ψ problem.
@@ -195,42 +243,28 @@ func methodName(m string) string {
 }
 
 // writeOutputs writes every output file atomically into dir.
-func writeOutputs(ctx context.Context, dir string, sc *scenario.Scenario, res *flow.Result, phi []float64, sum *report.Summary) error {
+func writeOutputs(ctx context.Context, dir string, sc *scenario.Scenario, c *computed) error {
 	if err := os.MkdirAll(dir, 0o755); err != nil {
 		return fmt.Errorf("output folder: %w", err)
 	}
-	files := []struct {
+	type file struct {
 		name  string
 		write func(io.Writer) error
-	}{
-		{"summary.json", func(w io.Writer) error { return report.WriteJSON(w, sum) }},
 	}
-	for i := range res.Surfaces {
-		s := &res.Surfaces[i]
+	files := []file{{"summary.json", func(w io.Writer) error { return report.WriteJSON(w, c.sum) }}}
+	for i := range c.res.Surfaces {
+		s := &c.res.Surfaces[i]
 		name := "surface-" + s.Name + ".csv"
 		if s.Boundary < 2 {
 			name = "wall-" + s.Name + ".csv"
 		}
-		files = append(files, struct {
-			name  string
-			write func(io.Writer) error
-		}{name, func(w io.Writer) error { return report.WriteSurfaceCSV(w, s) }})
+		files = append(files, file{name, func(w io.Writer) error { return report.WriteSurfaceCSV(w, s) }})
 	}
-	images, err := render.Render(res, phi, render.Options{Width: sc.Output.ImageWidth, Title: sc.Title, Images: sc.Output.Images})
-	if err != nil {
-		return err
-	}
-	for _, im := range images {
-		files = append(files, struct {
-			name  string
-			write func(io.Writer) error
-		}{im.Name + ".png", func(w io.Writer) error { _, err := w.Write(im.PNG); return err }})
+	for _, im := range c.images {
+		files = append(files, file{im.Name + ".png", func(w io.Writer) error { _, err := w.Write(im.PNG); return err }})
 	}
 	if sc.Output.FieldCSV {
-		files = append(files, struct {
-			name  string
-			write func(io.Writer) error
-		}{"field.csv", func(w io.Writer) error { return report.WriteFieldCSV(w, res, phi) }})
+		files = append(files, file{"field.csv", func(w io.Writer) error { return report.WriteFieldCSV(w, c.res, c.phi) }})
 	}
 	for _, f := range files {
 		if err := ctx.Err(); err != nil {
@@ -259,6 +293,9 @@ func writeAtomic(path string, write func(io.Writer) error) (err error) {
 	if err = write(tmp); err != nil {
 		return fmt.Errorf("writing %s: %w", path, err)
 	}
+	if err = tmp.Chmod(0o644); err != nil {
+		return fmt.Errorf("writing %s: %w", path, err)
+	}
 	if err = tmp.Close(); err != nil {
 		return fmt.Errorf("writing %s: %w", path, err)
 	}
@@ -270,6 +307,7 @@ func writeAtomic(path string, write func(io.Writer) error) (err error) {
 
 // progress prints one updating line on a terminal during long solves.
 type progress struct {
+	stage  string
 	w      io.Writer
 	on     bool
 	last   time.Time
@@ -279,7 +317,7 @@ type progress struct {
 }
 
 func newProgress(w io.Writer, quiet bool) *progress {
-	p := &progress{w: w}
+	p := &progress{w: w, stage: "stream function"}
 	if f, ok := w.(*os.File); ok && !quiet && term.IsTerminal(int(f.Fd())) {
 		p.on = true
 	}
@@ -296,7 +334,7 @@ func (p *progress) update(iter int, residual float64) {
 	p.prevIt = iter
 	if now := time.Now(); now.Sub(p.last) > 200*time.Millisecond {
 		p.last = now
-		fmt.Fprintf(p.w, "\rstream function, solve %d: iteration %d, residual %.2e   ", p.solve+1, iter, residual)
+		fmt.Fprintf(p.w, "\r%s, solve %d: iteration %d, residual %.2e   ", p.stage, p.solve+1, iter, residual)
 		p.shown = true
 	}
 }

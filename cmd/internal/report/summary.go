@@ -74,6 +74,8 @@ type SolveInfo struct {
 	SetupSeconds float64 `json:"setup_seconds"`
 	// PhiIterations is the velocity-potential solve's share of Iterations.
 	PhiIterations int `json:"phi_iterations"`
+	// TotalSeconds is the whole run before the files are written, wall clock.
+	TotalSeconds float64 `json:"total_seconds"`
 }
 
 // FlowInfo holds the channel-wide numbers.
