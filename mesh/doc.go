@@ -19,6 +19,10 @@
 // points with arc length, position, the unit normal pointing into the fluid and a quadrature
 // weight, ordered by x along walls and counter-clockwise around bodies.
 //
+// Faces (NewFaces) gives the open fraction of every dual-cell face, computed exactly by
+// intersecting each face with the boundaries, for the velocity potential's cut-face
+// finite-volume form; a cell split by a body thinner than the grid gets one piece per side.
+//
 // Coarser grids of the same geometry (for multigrid) are built by calling Build again with
 // Grid.Coarsen.
 //
