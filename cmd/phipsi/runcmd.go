@@ -263,6 +263,13 @@ func writeOutputs(ctx context.Context, dir string, sc *scenario.Scenario, c *com
 	for _, im := range c.images {
 		files = append(files, file{im.Name + ".png", func(w io.Writer) error { _, err := w.Write(im.PNG); return err }})
 	}
+	figs := make([]report.Figure, len(c.images))
+	for i, im := range c.images {
+		figs[i] = report.Figure(im)
+	}
+	files = append(files, file{"report.html", func(w io.Writer) error {
+		return report.WriteHTML(w, report.HTMLInput{Summary: c.sum, Scenario: sc, Geometry: c.res.Sol.Sys.Mesh.Geom, Figures: figs})
+	}})
 	if sc.Output.FieldCSV {
 		files = append(files, file{"field.csv", func(w io.Writer) error { return report.WriteFieldCSV(w, c.res, c.phi) }})
 	}
