@@ -35,7 +35,7 @@ type MGOptions struct {
 // equal smoothing before and after the correction, an exact coarsest solve and a zero initial
 // guess in every call, so that the V-cycle is a fixed linear operator M⁻¹). It is made by
 // NewMultigrid for a matrix whose unknowns are nodes of a structured grid, and is safe for use by
-// one goroutine at a time.
+// one goroutine at a time. One Multigrid serves any number of solves with its matrix.
 //
 // Levels. Coarse node (I, J) of a level sits at node (2I, 2J) of the level above; a level of
 // nx × ny nodes has nx/2 + 1 by ny/2 + 1 coarse nodes, so odd and even node counts are both
@@ -48,27 +48,37 @@ type MGOptions struct {
 // operator, never through a rediscretised geometry.
 //
 // Coarse operators are Galerkin products A_c = Pᵀ A P (nine-point stencils on every coarse
-// level), computed from the matrix alone; holes, steps and small bodies need no special
-// treatment, and A_c is symmetric whenever A is. The coarsest level (at most Coarsest unknowns)
-// is solved exactly by a dense inverse formed once with an LU factorisation, or by the
-// pseudo-inverse from an SVD when the coarsest operator is singular or nearly so (which thin
-// features can cause).
+// level), computed from the matrix alone in float64 and stored in float32; holes, steps and
+// small bodies need no special treatment, and A_c is symmetric, bit for bit, whenever A is and
+// Symmetric is set. The coarsest level (at most Coarsest unknowns) is solved exactly by a dense
+// inverse formed once with an LU factorisation, or by the pseudo-inverse from an SVD when the
+// coarsest operator is singular or nearly so (which thin features can cause).
 //
 // Smoothing is Gauss–Seidel in a colour order whose colours do not couple, so each colour is
 // updated in parallel with a result independent of the number of threads: on the finest level
 // red–black by the parity of i + j when every row is a five-point stencil (as the
 // Shortley–Weller and cut-face rows are), otherwise four colours by (i mod 2, j mod 2); on the
-// nine-point coarse levels always the four colours, which no nine-point stencil couples.
+// nine-point coarse levels always the four colours, which no nine-point stencil couples. With
+// red–black and one sweep (the default), the finest level's work is two passes over the matrix
+// per V-cycle: the first red step, the black step and the residual in one, the interpolated
+// correction and both colour steps in the other.
+//
+// Limits. Unknowns that share a node (the two sides of a body thinner than a cell, in the φ
+// problem) share their coarse values, so the coarse levels cannot represent the jump across such
+// a body and the iteration count then grows slowly with the grid (about as N^¼), although it
+// stays far below that of the Jacobi preconditioner. The ψ problem has one unknown per node
+// and is not affected.
 //
 // Work. Every kernel walks fixed blocks of grid rows, shared among min(GOMAXPROCS, blocks)
-// goroutines; no kernel reduces across blocks, so results are bit-identical for any number of
-// threads. All memory is allocated by NewMultigrid; PreconSolve allocates nothing.
+// goroutines that the Multigrid starts on first use and stops when it is garbage collected; no
+// kernel reduces across blocks, so results are bit-identical for any number of threads. All
+// memory is allocated by NewMultigrid (about 32 bytes per fine grid node); PreconSolve allocates
+// nothing.
 //
-// Reference: O. Tatebe, The multigrid preconditioned conjugate gradient method, Proc. Sixth
-// Copper Mountain Conference on Multigrid Methods, NASA CP 3224 (1993) 621–634; W. L. Briggs,
-// V. E. Henson, S. F. McCormick, A Multigrid Tutorial, 2nd ed., SIAM, 2000, ch. 3 and 8; U.
-// Trottenberg, C. W. Oosterlee, A. Schüller, Multigrid, Academic Press, 2001, §5.4 (Galerkin
-// coarse operators) and §4.7 (multicolour smoothers).
+// References: O. Tatebe, The multigrid preconditioned conjugate gradient method, Sixth Copper
+// Mountain Conference on Multigrid Methods, 1993; W. L. Briggs, V. E. Henson, S. F. McCormick,
+// A Multigrid Tutorial, 2nd ed., SIAM, 2000; U. Trottenberg, C. W. Oosterlee, A. Schüller,
+// Multigrid, Academic Press, 2001 (Galerkin coarse operators, multicolour smoothers).
 type Multigrid struct {
 	n         int
 	smooth    int
@@ -99,8 +109,11 @@ const mgBlockNodes = 16384
 // every diagonal entry must be positive. The matrix is referenced, not copied, and must not
 // change while the preconditioner is in use.
 //
-// NewMultigrid returns an error if a's couplings or diagonal do not meet these conditions or a
-// coarse level ends with a non-positive diagonal entry. It panics if len(nodes) is not a.Len(),
+// A system of at most MGOptions.Coarsest unknowns is solved exactly by a dense inverse.
+//
+// NewMultigrid returns an error if a's couplings or diagonal do not meet these conditions, a
+// coarse level ends with a non-positive diagonal entry, or the grid is narrower than 3 nodes
+// with more than Coarsest unknowns. It panics if len(nodes) is not a.Len(),
 // a node lies outside the grid, or an option is negative.
 func NewMultigrid(a *CSR, g mesh.Grid, nodes []int32, o MGOptions) (*Multigrid, error) {
 	if len(nodes) != a.N {
@@ -139,7 +152,10 @@ func NewMultigrid(a *CSR, g mesh.Grid, nodes []int32, o MGOptions) (*Multigrid, 
 	if a.N == 0 {
 		return mg, nil
 	}
-	if a.N <= coarsest || g.NX < 3 || g.NY < 3 {
+	if a.N > coarsest && (g.NX < 3 || g.NY < 3) {
+		return nil, fmt.Errorf("solver: multigrid: a grid of %d × %d nodes is too narrow to coarsen (at least 3 × 3)", g.NX, g.NY)
+	}
+	if a.N <= coarsest {
 		d, err := denseFromCSR(a, o.Symmetric)
 		if err != nil {
 			return nil, err
@@ -158,15 +174,23 @@ func NewMultigrid(a *CSR, g mesh.Grid, nodes []int32, o MGOptions) (*Multigrid, 
 	}
 	mg.levels = append(mg.levels, lv)
 	for lv.active > coarsest && (lv.nx > 2 || lv.ny > 2) {
-		if lv, err = lv.coarsen(mg); err != nil {
+		// The next level is the Galerkin product of this one in float64; then this one is
+		// stored for smoothing.
+		co, err := lv.coarsen(mg)
+		if err != nil {
 			return nil, err
 		}
+		if err := lv.finish(o.Symmetric); err != nil {
+			return nil, err
+		}
+		lv = co
 		mg.levels = append(mg.levels, lv)
 	}
-	last := mg.levels[len(mg.levels)-1]
-	if last.dense, err = last.denseInverse(o.Symmetric); err != nil {
+	// The coarsest level is only solved, never smoothed: it keeps its dense inverse alone.
+	if lv.dense, err = lv.denseInverse(o.Symmetric); err != nil {
 		return nil, err
 	}
+	lv.st64, lv.invD = nil, nil
 	// One residual buffer serves every coarse level: a level's residual is restricted before
 	// the next level computes its own.
 	size := 0

@@ -50,7 +50,7 @@ func (lv *gridLevel) denseInverse(symmetric bool) (*denseInverse, error) {
 	m := len(idx)
 	d := mat.NewDense(m, m, nil)
 	for row, k := range idx {
-		for e, v := range lv.st[k] {
+		for e, v := range lv.st64[k] {
 			if v == 0 {
 				continue
 			}

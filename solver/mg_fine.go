@@ -13,8 +13,8 @@ const (
 	fineSmooth          // Gauss–Seidel update of the rows of colour c
 	fineResidual        // r = b − A x on the padded grid, 0 on the rows of colour c
 	fineProlong         // x += P x_c from the first coarse level
-	finePre             // fused: init colour 0, smooth colour 1, residual (chunk c of the run)
-	finePost            // fused: prolong, smooth colour c1, smooth colour c2
+	finePre             // fused, before the correction: init colour 0, smooth colour 1, residual
+	finePost            // fused, after it: prolong, smooth colour c, smooth the other colour
 )
 
 // fineLevel is the finest level of a Multigrid: the caller's CSR rows on the caller's unknowns.
@@ -23,9 +23,10 @@ type fineLevel struct {
 	nx, ny   int
 	nodes    []int32
 	rowStart []int32 // the unknowns of grid row j are rowStart[j] ≤ u < rowStart[j+1]
-	colour   []uint8 // smoothing colour of each unknown
-	ncolour  int     // 2 (red–black) or 4
-	invDiag  []float64
+	// meta holds each unknown's smoothing colour (bits 0–1) and the position of the diagonal
+	// entry within its row (bits 2–7).
+	meta    []uint8
+	ncolour int // 2 (red–black) or 4
 	// r is the residual on the grid, padded by one node left and below and two right and above
 	// (node (i, j) at (j+1)·stride + i + 1), zero at every node that is not an unknown, so that
 	// restriction needs no test.
@@ -58,8 +59,7 @@ func newFineLevel(a *CSR, g mesh.Grid, nodes []int32) (*fineLevel, error) {
 	f := &fineLevel{
 		a: a, nx: nx, ny: ny, nodes: nodes,
 		rowStart: make([]int32, ny+1),
-		colour:   make([]uint8, a.N),
-		invDiag:  make([]float64, a.N),
+		meta:     make([]uint8, a.N),
 		stride:   nx + 3,
 	}
 	for _, k := range nodes {
@@ -76,7 +76,11 @@ func newFineLevel(a *CSR, g mesh.Grid, nodes []int32) (*fineLevel, error) {
 			for k := a.RowPtr[u]; k < a.RowPtr[u+1]; k++ {
 				v, val := int(a.Col[k]), a.Val[k]
 				if v == u {
+					if k-a.RowPtr[u] > 63 {
+						return nil, fmt.Errorf("solver: multigrid: row %d has %d entries before its diagonal, want at most 63", u, k-a.RowPtr[u])
+					}
 					diag = val
+					f.meta[u] = uint8(k-a.RowPtr[u]) << 2
 					continue
 				}
 				di, dj, ok := gridStep(int(nodes[v])-int(nodes[u]), nx)
@@ -94,7 +98,6 @@ func newFineLevel(a *CSR, g mesh.Grid, nodes []int32) (*fineLevel, error) {
 			if !(diag > 0) || !isFinite(diag) {
 				return nil, fmt.Errorf("solver: multigrid: diagonal entry of row %d at node (%d, %d) must be positive, got %g", u, i, j, diag)
 			}
-			f.invDiag[u] = 1 / diag
 		}
 	}
 	f.ncolour = 2
@@ -105,9 +108,9 @@ func newFineLevel(a *CSR, g mesh.Grid, nodes []int32) (*fineLevel, error) {
 		for u := int(f.rowStart[j]); u < int(f.rowStart[j+1]); u++ {
 			i := int(nodes[u]) - j*nx
 			if nine {
-				f.colour[u] = uint8(i&1 | (j&1)<<1)
+				f.meta[u] |= uint8(i&1 | (j&1)<<1)
 			} else {
-				f.colour[u] = uint8((i + j) & 1)
+				f.meta[u] |= uint8((i + j) & 1)
 			}
 		}
 	}
@@ -232,14 +235,15 @@ func (f *fineLevel) stage(k, j int) {
 // initRange sets x_u = b_u / A_uu on the unknowns of colour c in [lo, hi) and x_u = 0 on the
 // others: the first Gauss–Seidel step from x = 0.
 func (f *fineLevel) initRange(lo, hi, c int) {
+	a := f.a
 	x := f.x[lo:hi]
 	b := f.b[lo:hi]
-	inv := f.invDiag[lo:hi]
-	col := f.colour[lo:hi]
-	b, inv, col = b[:len(x)], inv[:len(x)], col[:len(x)]
+	meta := f.meta[lo:hi]
+	rp := a.RowPtr[lo:hi]
+	b, meta, rp = b[:len(x)], meta[:len(x)], rp[:len(x)]
 	for q := range x {
-		if int(col[q]) == c {
-			x[q] = b[q] * inv[q]
+		if m := meta[q]; int(m&3) == c {
+			x[q] = b[q] / a.Val[rp[q]+int(m>>2)]
 		} else {
 			x[q] = 0
 		}
@@ -254,12 +258,12 @@ func (f *fineLevel) smoothRange(lo, hi, c int) {
 	ends := a.RowPtr[lo+1 : hi+1]
 	x := f.x[lo:hi]
 	b := f.b[lo:hi]
-	inv := f.invDiag[lo:hi]
-	col := f.colour[lo:hi]
-	x, b, inv, col = x[:len(ends)], b[:len(ends)], inv[:len(ends)], col[:len(ends)]
+	meta := f.meta[lo:hi]
+	x, b, meta = x[:len(ends)], b[:len(ends)], meta[:len(ends)]
 	start := a.RowPtr[lo]
 	for q, end := range ends {
-		if int(col[q]) != c {
+		m := meta[q]
+		if int(m&3) != c {
 			start = end
 			continue
 		}
@@ -271,7 +275,7 @@ func (f *fineLevel) smoothRange(lo, hi, c int) {
 		for k, v := range cols {
 			s += vals[k] * xAll[v]
 		}
-		x[q] += (b[q] - s) * inv[q]
+		x[q] += (b[q] - s) / vals[m>>2]
 	}
 }
 
@@ -285,15 +289,15 @@ func (f *fineLevel) residualRow(j, skip int) {
 	ends := a.RowPtr[lo+1 : hi+1]
 	nodes := f.nodes[lo:hi]
 	b := f.b[lo:hi]
-	col := f.colour[lo:hi]
-	nodes, b, col = nodes[:len(ends)], b[:len(ends)], col[:len(ends)]
+	meta := f.meta[lo:hi]
+	nodes, b, meta = nodes[:len(ends)], b[:len(ends)], meta[:len(ends)]
 	x, r := f.x, f.r
 	off := (j+1)*f.stride + 1 - j*f.nx // padded index of node k is k + off
 	start := a.RowPtr[lo]
 	prev := int32(-1)
 	for q, end := range ends {
 		k := int(nodes[q]) + off
-		if int(col[q]) == skip {
+		if int(meta[q]&3) == skip {
 			if nodes[q] != prev {
 				r[k] = 0
 			}

@@ -14,8 +14,15 @@ const (
 )
 
 // stencil holds the nine coefficients of a node's row on a coarse level: entry (dj+1)·3 + di+1
-// couples node (i, j) to node (i+di, j+dj); entry 4 is the diagonal.
-type stencil [9]float64
+// couples node (i, j) to node (i+di, j+dj); entry 4 is the diagonal. The Galerkin products are
+// formed in float64 (stencil64) and stored rounded to float32, which halves the memory and the
+// traffic of the coarse levels; the smoother and the residual both use the rounded operator, so
+// each level is consistent in itself (and exactly symmetric when A is, see finish). Rounding
+// changes the coarse operators by a relative 6e-8, far below anything the V-cycle resolves.
+type stencil [9]float32
+
+// stencil64 is a stencil during setup.
+type stencil64 [9]float64
 
 // gridLevel is a coarse level of a Multigrid: a Galerkin nine-point operator on every node of
 // an nx × ny grid, stored with padding (one node left and below, two right and above, all zero)
@@ -25,7 +32,8 @@ type stencil [9]float64
 type gridLevel struct {
 	nx, ny, sx int
 	st         []stencil
-	invD       []float64 // 1/A_kk at active nodes, 0 elsewhere
+	st64       []stencil64 // the Galerkin operator in float64, during setup only
+	invD       []float64   // 1/A_kk at active nodes, 0 elsewhere
 	x, b       []float64
 	r          []float64 // residual, in this level's layout (shared with the other levels)
 	src        []float64 // residual of the level above, padded, rows of srcStride
@@ -45,7 +53,7 @@ func newGridLevel(nx, ny int) *gridLevel {
 	size := sx * (ny + 3)
 	lv := &gridLevel{
 		nx: nx, ny: ny, sx: sx,
-		st:   make([]stencil, size),
+		st64: make([]stencil64, size),
 		invD: make([]float64, size),
 		x:    make([]float64, size),
 		b:    make([]float64, size),
@@ -147,7 +155,9 @@ func (lv *gridLevel) smoothRow(j, i0 int) {
 	p0, p1, p2 := r.p[0][:len(st)], r.p[1][:len(st)], r.p[2][:len(st)]
 	for i := uint(i0 & 1); i < uint(len(st)); i += 2 {
 		s := &st[i]
-		t := (s[0]*m0[i] + s[1]*m1[i] + s[2]*m2[i]) + (s[3]*c0[i] + s[5]*c2[i]) + (s[6]*p0[i] + s[7]*p1[i] + s[8]*p2[i])
+		t := (float64(s[0])*m0[i] + float64(s[1])*m1[i] + float64(s[2])*m2[i]) +
+			(float64(s[3])*c0[i] + float64(s[5])*c2[i]) +
+			(float64(s[6])*p0[i] + float64(s[7])*p1[i] + float64(s[8])*p2[i])
 		x[i] = (b[i] - t) * inv[i]
 	}
 }
@@ -168,7 +178,9 @@ func (lv *gridLevel) residualRow(j int) {
 	p0, p1, p2 := sl.p[0][:len(st)], sl.p[1][:len(st)], sl.p[2][:len(st)]
 	for i := range st {
 		s := &st[i]
-		t := (s[0]*m0[i] + s[1]*m1[i] + s[2]*m2[i]) + (s[3]*c0[i] + s[4]*c1[i] + s[5]*c2[i]) + (s[6]*p0[i] + s[7]*p1[i] + s[8]*p2[i])
+		t := (float64(s[0])*m0[i] + float64(s[1])*m1[i] + float64(s[2])*m2[i]) +
+			(float64(s[3])*c0[i] + float64(s[4])*c1[i] + float64(s[5])*c2[i]) +
+			(float64(s[6])*p0[i] + float64(s[7])*p1[i] + float64(s[8])*p2[i])
 		r[i] = b[i] - t
 	}
 }
@@ -255,7 +267,7 @@ func (lv *gridLevel) coarsen(mg *Multigrid) (*gridLevel, error) {
 				continue
 			}
 			ent := buf[:0]
-			for d, a := range lv.st[k] {
+			for d, a := range lv.st64[k] {
 				if a != 0 {
 					ent = append(ent, stepEntry{int8(d%3 - 1), int8(d/3 - 1), a})
 				}
@@ -267,6 +279,41 @@ func (lv *gridLevel) coarsen(mg *Multigrid) (*gridLevel, error) {
 		return nil, err
 	}
 	return co, nil
+}
+
+// finish stores the level's operator for the V-cycle: symmetrised when symmetric is set
+// (A_c(C, D) and A_c(D, C) are equal in exact arithmetic and are made equal bit for bit, so that
+// the level's Gauss–Seidel sweeps are exact adjoints of each other), rounded to float32, with
+// invD the inverse of the rounded diagonal. The float64 operator is dropped.
+func (lv *gridLevel) finish(symmetric bool) error {
+	if symmetric {
+		for k := range lv.st64 {
+			if lv.invD[k] == 0 {
+				continue
+			}
+			for d := range 9 {
+				kn := k + (d/3-1)*lv.sx + d%3 - 1
+				avg := 0.5 * (lv.st64[k][d] + lv.st64[kn][8-d])
+				lv.st64[k][d], lv.st64[kn][8-d] = avg, avg
+			}
+		}
+	}
+	lv.st = make([]stencil, len(lv.st64))
+	for k, s := range lv.st64 {
+		if lv.invD[k] == 0 {
+			continue
+		}
+		for d, v := range s {
+			lv.st[k][d] = float32(v)
+		}
+		d := float64(lv.st[k][4])
+		if !(d > 0) || !isFinite(d) {
+			return fmt.Errorf("solver: multigrid: coarse level of %d × %d nodes: diagonal at node %d must be a positive float32, got %g", lv.nx, lv.ny, k, s[4])
+		}
+		lv.invD[k] = 1 / d
+	}
+	lv.st64 = nil
+	return nil
 }
 
 // stepEntry is one coefficient a of a fine row, coupling its node to the node (di, dj) away.
@@ -312,8 +359,8 @@ func (t *galerkinTask) runBlock(blk int) {
 	for j := j0; j < j1; j++ {
 		for i := range co.nx {
 			k := (j+1)*co.sx + i + 1
-			s := &co.st[k]
-			if *s == (stencil{}) {
+			s := &co.st64[k]
+			if *s == (stencil64{}) {
 				continue
 			}
 			if d := s[4]; !(d > 0) || !isFinite(d) {
@@ -380,7 +427,7 @@ func (co *gridLevel) addGalerkin(i, j int, ent []stepEntry, j0, j1 int) {
 		}
 		for _, cx := range px[:1+i&1] {
 			w := cx.w * cy.w
-			s := &co.st[(by+cy.d+1)*co.sx+bx+cx.d+1]
+			s := &co.st64[(by+cy.d+1)*co.sx+bx+cx.d+1]
 			for b := cy.d - 1; b <= min(2, cy.d+1); b++ {
 				for a := cx.d - 1; a <= min(2, cx.d+1); a++ {
 					s[(b-cy.d+1)*3+a-cx.d+1] += w * ap[b][a]
