@@ -187,7 +187,7 @@ type PsiSolution struct {
 
 // Method names accepted by SolvePsi.
 const (
-	MethodAuto   = "auto" // the best available: Jacobi-preconditioned Krylov for now
+	MethodAuto   = "auto" // the best available: multigrid-preconditioned Krylov
 	MethodKrylov = "cg"   // Jacobi-preconditioned Krylov: BiCGStab for ψ, CG for φ
 	MethodSOR    = "sor"  // red–black SOR with the optimal ω of the grid
 	MethodMG     = "mgcg" // multigrid-preconditioned Krylov
