@@ -68,6 +68,9 @@ func (s *Scenario) Plan(spacing float64) (*Plan, error) {
 	if err := s.checkBodies(geo); err != nil {
 		return nil, err
 	}
+	if err := s.checkGaps(geo, h); err != nil {
+		return nil, err
+	}
 	for k, p := range s.Probes {
 		if !geo.InFluid(mesh.Point{X: p.At[0], Y: p.At[1]}) {
 			return nil, s.Errorf(fmt.Sprintf("probe[%d].at", k), "(%g, %g) is not in the fluid: it must lie inside the channel (0 ≤ x ≤ %g, between the walls) and outside every obstacle", p.At[0], p.At[1], ch.Length)
@@ -220,6 +223,52 @@ func (s *Scenario) checkBodies(geo *mesh.Geometry) error {
 			for _, p := range samples[b] {
 				if A.Shape.Contains(p.P) {
 					return s.Errorf(key, "%q overlaps %q near (%.6g, %.6g): obstacles must not touch", B.Name, A.Name, p.P.X, p.P.Y)
+				}
+			}
+		}
+	}
+	return nil
+}
+
+// MinGapCells is the narrowest gap, in grid spacings, between a body and a wall or another body
+// that the grid can resolve: at two cells the peak speed in a cylinder's gap to a wall is within
+// 1 % of the converged value, at one and a half already 8 % off, and at one cell no fluid node
+// may lie in the gap at all. Narrower gaps are refused with the spacing that would resolve them;
+// gaps under four cells are run with a warning.
+const MinGapCells = 2
+
+// checkGaps refuses a body closer than MinGapCells·h to a wall or another body.
+func (s *Scenario) checkGaps(geo *mesh.Geometry, h float64) error {
+	ds := h / 4
+	walls := [2][]mesh.SurfacePoint{geo.Lower.Sample(ds), geo.Upper.Sample(ds)}
+	samples := make([][]mesh.SurfacePoint, len(geo.Bodies))
+	for k, b := range geo.Bodies {
+		samples[k] = b.Shape.Sample(ds)
+	}
+	limit := MinGapCells * h
+	for k, b := range geo.Bodies {
+		box := b.Shape.Bounds().Grow(limit)
+		for w, name := range [2]string{"lower wall", "upper wall"} {
+			for _, q := range walls[w] {
+				if q.P.X < box.Min.X || q.P.X > box.Max.X || q.P.Y < box.Min.Y || q.P.Y > box.Max.Y {
+					continue
+				}
+				for _, p := range samples[k] {
+					if d := p.P.Sub(q.P).Norm(); d < limit {
+						return s.Errorf(fmt.Sprintf("obstacle[%d]", k), "%q is %.3g m (%.1f cells) from the %s near x = %.4g m; the grid needs at least %d cells across a gap to resolve the flow through it: use a spacing of at most %.3g m", b.Name, d, d/h, name, p.P.X, MinGapCells, d/4)
+					}
+				}
+			}
+		}
+		for j := k + 1; j < len(geo.Bodies); j++ {
+			if !box.Overlaps(geo.Bodies[j].Shape.Bounds()) {
+				continue
+			}
+			for _, q := range samples[j] {
+				for _, p := range samples[k] {
+					if d := p.P.Sub(q.P).Norm(); d < limit {
+						return s.Errorf(fmt.Sprintf("obstacle[%d]", j), "%q is %.3g m (%.1f cells) from %q; the grid needs at least %d cells across a gap to resolve the flow through it: use a spacing of at most %.3g m", geo.Bodies[j].Name, d, d/h, b.Name, MinGapCells, d/4)
+					}
 				}
 			}
 		}
