@@ -165,6 +165,91 @@ func stepAndNorm(x, r []float64, alpha float64, p, q []float64) float64 {
 	})
 }
 
+// Workspace holds the work vectors of CG and BiCGStab, so that a sequence of solves allocates
+// them once: the 1 + K superposition solves of SolvePsi share one. The zero value is an empty
+// workspace; ReserveCG or ReserveBiCGStab sizes it beforehand, else the first solve does, and it
+// keeps the memory of the largest solve it has served until it is garbage collected. Every vector a method uses is written before it is
+// read, so a reused workspace gives the same results, bit for bit, as a fresh one (or as the
+// functions CG and BiCGStab, which use a workspace of their own).
+//
+// Memory: CG keeps 3 vectors of the operator's length (4 with a preconditioner), BiCGStab 6 (7
+// with a preconditioner): the residual, the search direction and the operator's product, BiCGStab
+// also the shadow residual, the second product and the best iterate, and with a preconditioner its
+// output. A solve with a workspace that is large enough allocates nothing of grid size.
+//
+// A Workspace serves one solve at a time; its vectors never alias the caller's b and x.
+type Workspace struct {
+	buf []float64
+}
+
+// cgVectors and bicgstabVectors return the number of work vectors of CG and BiCGStab, with or
+// without a preconditioner.
+func cgVectors(precon bool) int {
+	if precon {
+		return 4
+	}
+	return 3
+}
+
+func bicgstabVectors(precon bool) int {
+	if precon {
+		return 7
+	}
+	return 6
+}
+
+// ReserveCG grows w, if it is smaller, to the work vectors of a preconditioned CG solve of n
+// unknowns (4n values), and maps the new memory in at once. The solves that follow then neither
+// allocate nor meet fresh pages, so the cost of the memory falls on the setup that calls Reserve,
+// not on the first solve. It panics if n is negative.
+func (w *Workspace) ReserveCG(n int) {
+	if n < 0 {
+		panic(fmt.Sprintf("solver: Workspace.ReserveCG: n must be >= 0, got %d", n))
+	}
+	w.reserve(cgVectors(true) * n)
+}
+
+// ReserveBiCGStab is ReserveCG for a preconditioned BiCGStab solve (7n values), which is also
+// enough for CG.
+func (w *Workspace) ReserveBiCGStab(n int) {
+	if n < 0 {
+		panic(fmt.Sprintf("solver: Workspace.ReserveBiCGStab: n must be >= 0, got %d", n))
+	}
+	w.reserve(bicgstabVectors(true) * n)
+}
+
+// reserve grows w to size values and touches the new memory.
+func (w *Workspace) reserve(size int) {
+	if w.grow(size) {
+		touchPages(w.buf)
+	}
+}
+
+// grow makes w hold at least size values and reports whether it allocated. A workspace that is
+// too small is replaced, not extended: its contents need not survive.
+func (w *Workspace) grow(size int) bool {
+	if len(w.buf) >= size {
+		return false
+	}
+	w.buf = make([]float64, size)
+	return true
+}
+
+// vector returns work vector i of length n; its capacity ends where vector i + 1 begins.
+func (w *Workspace) vector(i, n int) []float64 {
+	return w.buf[i*n : (i+1)*n : (i+1)*n]
+}
+
+// touchPages writes a zero into every 4 KiB page of v (freshly allocated, so zero already), which
+// makes the operating system map the pages now rather than inside the first solve that writes
+// them.
+func touchPages(v []float64) {
+	const perPage = 4096 / 8
+	for i := 0; i < len(v); i += perPage {
+		v[i] = 0
+	}
+}
+
 // CG solves A x = b by the conjugate gradient method, preconditioned by m when m is not nil
 // (Saad 2003, ch. 6 and 9). A and M must be symmetric positive definite. x holds the initial
 // guess on entry and the solution on return.
@@ -178,6 +263,13 @@ func stepAndNorm(x, r []float64, alpha float64, p, q []float64) float64 {
 // iteration; a preconditioner's error (wrapped). In every case x holds the last finite iterate
 // and Stats its true residual. CG panics if b or x does not have length a.Len().
 func CG(ctx context.Context, a Operator, b, x []float64, m Preconditioner, s *Settings) (Stats, error) {
+	var w Workspace
+	return w.CG(ctx, a, b, x, m, s)
+}
+
+// CG is the function CG with its work vectors taken from w, which grows if it is too small; the
+// results are the same bit for bit.
+func (w *Workspace) CG(ctx context.Context, a Operator, b, x []float64, m Preconditioner, s *Settings) (Stats, error) {
 	const method = "cg"
 	cfg := s.resolve(method)
 	n := a.Len()
@@ -194,12 +286,13 @@ func CG(ctx context.Context, a Operator, b, x []float64, m Preconditioner, s *Se
 		return st, fmt.Errorf("%w: %s: right-hand side has a non-finite entry or overflows ‖b‖", ErrBreakdown, method)
 	}
 
-	r := make([]float64, n) // residual b − A x
-	p := make([]float64, n) // search direction
-	q := make([]float64, n) // A p
-	z := r                  // preconditioned residual M⁻¹ r; r itself when there is no preconditioner
+	w.grow(cgVectors(m != nil) * n)
+	r := w.vector(0, n) // residual b − A x
+	p := w.vector(1, n) // search direction
+	q := w.vector(2, n) // A p
+	z := r              // preconditioned residual M⁻¹ r; r itself when there is no preconditioner
 	if m != nil {
-		z = make([]float64, n)
+		z = w.vector(3, n)
 	}
 
 	// finish recomputes the true residual of x (into q, no longer needed) for a solve that ends
@@ -321,6 +414,13 @@ func CG(ctx context.Context, a Operator, b, x []float64, m Preconditioner, s *Se
 // Errors are those of CG. When the solve does not converge, x holds whichever of the last iterate
 // and the iterate of smallest recursive residual has the smaller true residual.
 func BiCGStab(ctx context.Context, a Operator, b, x []float64, m Preconditioner, s *Settings) (Stats, error) {
+	var w Workspace
+	return w.BiCGStab(ctx, a, b, x, m, s)
+}
+
+// BiCGStab is the function BiCGStab with its work vectors taken from w, which grows if it is too
+// small; the results are the same bit for bit.
+func (w *Workspace) BiCGStab(ctx context.Context, a Operator, b, x []float64, m Preconditioner, s *Settings) (Stats, error) {
 	const method = "bicgstab"
 	cfg := s.resolve(method)
 	n := a.Len()
@@ -337,15 +437,16 @@ func BiCGStab(ctx context.Context, a Operator, b, x []float64, m Preconditioner,
 		return st, fmt.Errorf("%w: %s: right-hand side has a non-finite entry or overflows ‖b‖", ErrBreakdown, method)
 	}
 
-	r := make([]float64, n)    // residual; holds s = r − α v between the half steps
-	rhat := make([]float64, n) // shadow residual r̂
-	p := make([]float64, n)    // search direction
-	v := make([]float64, n)    // A M⁻¹ p
-	t := make([]float64, n)    // A M⁻¹ s
-	xBest := make([]float64, n)
+	w.grow(bicgstabVectors(m != nil) * n)
+	r := w.vector(0, n)    // residual; holds s = r − α v between the half steps
+	rhat := w.vector(1, n) // shadow residual r̂
+	p := w.vector(2, n)    // search direction
+	v := w.vector(3, n)    // A M⁻¹ p
+	t := w.vector(4, n)    // A M⁻¹ s
+	xBest := w.vector(5, n)
 	var z []float64 // M⁻¹ p, then M⁻¹ s
 	if m != nil {
-		z = make([]float64, n)
+		z = w.vector(6, n)
 	}
 
 	rnorm := residualTo(a, r, b, x)

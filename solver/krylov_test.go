@@ -10,6 +10,8 @@ import (
 	"testing"
 
 	"gonum.org/v1/gonum/mat"
+
+	"phipsi/bc"
 )
 
 // method is one way of solving a linear system, as the tests see it.
@@ -579,4 +581,202 @@ func TestRestartOnFalseConvergence(t *testing.T) {
 			}
 		})
 	}
+}
+
+// sameBits reports whether x and y hold the same float64 values bit for bit (NaNs included).
+func sameBits(x, y []float64) bool {
+	return slices.EqualFunc(x, y, func(a, b float64) bool { return math.Float64bits(a) == math.Float64bits(b) })
+}
+
+// TestWorkspaceSameBits checks that a solve with a reused workspace gives the same x, Stats and
+// error as the plain function, bit for bit. One workspace serves every case, largest first, and
+// is filled with NaN before each solve, so a method that read a work vector before writing it
+// would differ (or turn NaN).
+func TestWorkspaceSameBits(t *testing.T) {
+	rng := rand.New(rand.NewPCG(5, 9))
+	lap := poisson5(48, func(x, y float64) float64 { return x*x - y*y + x }, func(x, y float64) float64 { return 1 })
+	lapSmall := poisson5(20, func(x, y float64) float64 { return x * y }, func(x, y float64) float64 { return 0 })
+	sw := shortleyWeller(32)
+	psi := mgPassageCylinder.psi(t, 6000)
+	mgPsi, err := NewMultigrid(psi.A, psi.Mesh.Grid, psi.Nodes, MGOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	psiRHS := psiRightHandSides(psi)
+	phiMeshCyl := mgPassageCylinder.mesh(t, 6000)
+	phiSet, err := bc.New(phiMeshCyl, 1, make([]bc.Body, len(phiMeshCyl.Geom.Bodies)))
+	if err != nil {
+		t.Fatal(err)
+	}
+	phi, err := AssemblePhi(phiMeshCyl, phiSet, nil, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	mgPhi, err := NewMultigrid(phi.A, phi.Mesh.Grid, phi.Nodes, MGOptions{Symmetric: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	few := &Settings{MaxIterations: 3}
+
+	type solveFunc func(ctx context.Context, a Operator, b, x []float64, m Preconditioner, s *Settings) (Stats, error)
+	type pair struct {
+		plain solveFunc
+		ws    func(w *Workspace) solveFunc
+	}
+	cg := pair{CG, func(w *Workspace) solveFunc { return w.CG }}
+	bicg := pair{BiCGStab, func(w *Workspace) solveFunc { return w.BiCGStab }}
+	// Operators are made afresh for every solve: a poisoned one counts its calls.
+	same := func(a *CSR) func() Operator { return func() Operator { return a } }
+	poisoned := func(a *CSR, k int) func() Operator { return func() Operator { return poisonAt(a, k) } }
+	tests := []struct {
+		name string
+		f    pair
+		a    func() Operator
+		b    []float64
+		x0   []float64 // initial guess
+		m    Preconditioner
+		s    *Settings
+	}{
+		{"bicgstab+mg psi B0", bicg, same(psi.A), psiRHS[0], make([]float64, psi.A.N), mgPsi, nil},
+		{"bicgstab+mg psi BK", bicg, same(psi.A), psiRHS[1], make([]float64, psi.A.N), mgPsi, nil},
+		{"cg+mg phi", cg, same(phi.A), phi.B, slices.Clone(phi.X0), mgPhi, nil},
+		{"cg laplacian", cg, same(lap.a), lap.b, make([]float64, lap.a.N), nil, nil},
+		{"cg+jacobi laplacian", cg, same(lap.a), lap.b, randVec(rng, lap.a.N), NewJacobi(lap.a), nil},
+		{"cg+jacobi not converged", cg, same(lap.a), lap.b, make([]float64, lap.a.N), NewJacobi(lap.a), few},
+		{"cg poisoned operator", cg, poisoned(lap.a, 7), lap.b, make([]float64, lap.a.N), nil, nil},
+		{"bicgstab shortley-weller", bicg, same(sw.a), sw.b, make([]float64, sw.a.N), nil, nil},
+		{"bicgstab+jacobi shortley-weller", bicg, same(sw.a), sw.b, randVec(rng, sw.a.N), NewJacobi(sw.a), nil},
+		{"bicgstab+jacobi not converged", bicg, same(sw.a), sw.b, make([]float64, sw.a.N), NewJacobi(sw.a), few},
+		{"bicgstab poisoned operator", bicg, poisoned(sw.a, 9), sw.b, make([]float64, sw.a.N), nil, nil},
+		{"cg smaller laplacian", cg, same(lapSmall.a), lapSmall.b, make([]float64, lapSmall.a.N), NewJacobi(lapSmall.a), nil},
+		{"bicgstab smaller laplacian", bicg, same(lapSmall.a), lapSmall.b, make([]float64, lapSmall.a.N), NewJacobi(lapSmall.a), nil},
+	}
+	var w Workspace
+	w.ReserveBiCGStab(psi.A.N) // the largest case
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			want := slices.Clone(tt.x0)
+			wantSt, wantErr := tt.f.plain(context.Background(), tt.a(), tt.b, want, tt.m, tt.s)
+			for round := range 2 {
+				for i := range w.buf {
+					w.buf[i] = math.NaN()
+				}
+				got := slices.Clone(tt.x0)
+				st, err := tt.f.ws(&w)(context.Background(), tt.a(), tt.b, got, tt.m, tt.s)
+				if st != wantSt || fmt.Sprint(err) != fmt.Sprint(wantErr) || !sameBits(got, want) {
+					t.Errorf("round %d: got %+v, error %v, x same bits %v; want %+v, error %v and the same x as the plain call",
+						round, st, err, sameBits(got, want), wantSt, wantErr)
+				}
+			}
+		})
+	}
+	if len(w.buf) != bicgstabVectors(true)*psi.A.N {
+		t.Errorf("workspace: got %d values, want the %d reserved (no case needs more)", len(w.buf), bicgstabVectors(true)*psi.A.N)
+	}
+}
+
+// TestWorkspaceAllocs checks that a converging solve with a reserved workspace allocates nothing,
+// at two sizes of each problem, and that the workspace keeps its memory.
+func TestWorkspaceAllocs(t *testing.T) {
+	type problem struct {
+		a *CSR
+		b []float64
+		m Preconditioner
+	}
+	laplacian := func(cells int, jacobi bool) problem {
+		p := poisson5(cells, func(x, y float64) float64 { return x * y }, func(x, y float64) float64 { return 0 })
+		if jacobi {
+			return problem{p.a, p.b, NewJacobi(p.a)}
+		}
+		return problem{p.a, p.b, nil}
+	}
+	psiMG := func(cells int) problem {
+		sys := mgPassageCylinder.psi(t, cells)
+		mg, err := NewMultigrid(sys.A, sys.Mesh.Grid, sys.Nodes, MGOptions{})
+		if err != nil {
+			t.Fatal(err)
+		}
+		return problem{sys.A, sys.B0, mg}
+	}
+	type solveFunc func(w *Workspace, p problem, x []float64) (Stats, error)
+	cg := func(w *Workspace, p problem, x []float64) (Stats, error) {
+		return w.CG(context.Background(), p.a, p.b, x, p.m, nil)
+	}
+	bicg := func(w *Workspace, p problem, x []float64) (Stats, error) {
+		return w.BiCGStab(context.Background(), p.a, p.b, x, p.m, nil)
+	}
+	tests := []struct {
+		name     string
+		solve    solveFunc
+		problems [2]problem // a small and a larger one
+	}{
+		{"cg", cg, [2]problem{laplacian(16, false), laplacian(64, false)}},
+		{"cg+jacobi", cg, [2]problem{laplacian(16, true), laplacian(64, true)}},
+		{"bicgstab", bicg, [2]problem{laplacian(16, false), laplacian(64, false)}},
+		{"bicgstab+jacobi", bicg, [2]problem{laplacian(16, true), laplacian(64, true)}},
+		{"bicgstab+multigrid psi", bicg, [2]problem{psiMG(2000), psiMG(20000)}},
+	}
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			for _, p := range tt.problems {
+				n := p.a.N
+				x := make([]float64, n)
+				var w Workspace
+				w.ReserveBiCGStab(n)
+				first := &w.buf[0]
+				solve := func() {
+					clear(x)
+					if _, err := tt.solve(&w, p, x); err != nil {
+						t.Fatalf("%d unknowns: %v", n, err)
+					}
+				}
+				solve() // the multigrid starts its helpers on first use
+				if got := testing.AllocsPerRun(5, solve); got != 0 {
+					t.Errorf("%d unknowns: got %v allocations per solve, want 0", n, got)
+				}
+				if &w.buf[0] != first {
+					t.Errorf("%d unknowns: the workspace was reallocated, want its reserved memory reused", n)
+				}
+			}
+		})
+	}
+}
+
+func TestWorkspaceReserve(t *testing.T) {
+	tests := []struct {
+		name    string
+		reserve func(w *Workspace)
+		want    int // values held afterwards
+	}{
+		{"cg", func(w *Workspace) { w.ReserveCG(100) }, 400},
+		{"bicgstab", func(w *Workspace) { w.ReserveBiCGStab(100) }, 700},
+		{"bicgstab then cg keeps the larger", func(w *Workspace) { w.ReserveBiCGStab(100); w.ReserveCG(100) }, 700},
+		{"cg then bicgstab grows", func(w *Workspace) { w.ReserveCG(100); w.ReserveBiCGStab(100) }, 700},
+		{"zero", func(w *Workspace) { w.ReserveCG(0) }, 0},
+	}
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			var w Workspace
+			tt.reserve(&w)
+			if len(w.buf) != tt.want {
+				t.Errorf("got %d values, want %d", len(w.buf), tt.want)
+			}
+		})
+	}
+	t.Run("a solve grows a small workspace", func(t *testing.T) {
+		p := poisson5(8, func(x, y float64) float64 { return x + y }, func(x, y float64) float64 { return 0 })
+		var w Workspace
+		w.ReserveCG(3)
+		if _, err := w.BiCGStab(context.Background(), p.a, p.b, make([]float64, p.a.N), NewJacobi(p.a), nil); err != nil {
+			t.Fatal(err)
+		}
+		if want := bicgstabVectors(true) * p.a.N; len(w.buf) != want {
+			t.Errorf("got %d values, want %d", len(w.buf), want)
+		}
+	})
+	t.Run("negative n panics", func(t *testing.T) {
+		var w Workspace
+		expectPanic(t, "n must be >= 0, got -1", func() { w.ReserveCG(-1) })
+		expectPanic(t, "n must be >= 0, got -2", func() { w.ReserveBiCGStab(-2) })
+	})
 }

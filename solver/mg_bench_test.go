@@ -25,7 +25,7 @@ func BenchmarkSolvePsi(b *testing.B) {
 		for _, size := range mgBenchCells {
 			b.Run(fmt.Sprintf("method=mgbicg/case=%s/n=%s", p.name, size.label), func(b *testing.B) {
 				sys := p.psi(b, size.cells)
-				rhs := append([][]float64{sys.B0}, sys.BK...)
+				rhs := psiRightHandSides(sys)
 				xs := make([][]float64, len(rhs))
 				for k := range xs {
 					xs[k] = make([]float64, sys.A.N)

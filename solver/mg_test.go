@@ -127,6 +127,95 @@ func mgSizes() []int {
 	return []int{4000, 16000, 62000, 250000}
 }
 
+// psiRightHandSides returns the 1 + K right-hand sides of the superposition solves of sys, dense:
+// B0, then every BK.
+func psiRightHandSides(sys *PsiSystem) [][]float64 {
+	rhs := [][]float64{sys.B0}
+	for k := range sys.BK {
+		b := make([]float64, sys.BK[k].N)
+		sys.BK[k].DenseTo(b)
+		rhs = append(rhs, b)
+	}
+	return rhs
+}
+
+// TestPsiBodyRightHandSides checks the sparse storage of BK against the geometry: body k's
+// right-hand side has an entry, positive, exactly at the unknowns one of whose links ends on the
+// body (a cut arm, or a whole link to a node pinned to it), in increasing order.
+func TestPsiBodyRightHandSides(t *testing.T) {
+	steps := [4][2]int{{1, 0}, {-1, 0}, {0, 1}, {0, -1}}
+	for _, p := range []mgPassage{mgPassageCylinder, mgPassageFoil} {
+		t.Run(p.name, func(t *testing.T) {
+			sys := p.psi(t, 6000)
+			m := sys.Mesh
+			g := m.Grid
+			n := len(sys.Nodes)
+			if len(sys.BK) != len(m.Geom.Bodies) {
+				t.Fatalf("got %d body right-hand sides, want %d", len(sys.BK), len(m.Geom.Bodies))
+			}
+			for k, bk := range sys.BK {
+				if bk.N != n || len(bk.Index) != len(bk.Val) {
+					t.Fatalf("body %d: N %d, %d indices, %d values; want N = %d and as many values as indices", k, bk.N, len(bk.Index), len(bk.Val), n)
+				}
+				var want []int32
+				for u, node := range sys.Nodes {
+					i, j := int(node)%g.NX, int(node)/g.NX
+					arms, _ := m.Arms(int(node))
+					touches := false
+					for d, st := range steps {
+						if d == mesh.East && i == g.NX-1 {
+							continue // the outlet column mirrors its west arm
+						}
+						if arms[d].Boundary == mesh.BodyID(k) {
+							touches = true
+						} else if arms[d].Boundary == mesh.NoBoundary {
+							nk := g.Index(i+st[0], j+st[1])
+							touches = touches || (m.Kind[nk] == mesh.Pinned && int(m.Owner[nk]) == mesh.BodyID(k))
+						}
+					}
+					if touches {
+						want = append(want, int32(u))
+					}
+				}
+				if !slices.Equal(bk.Index, want) {
+					t.Errorf("body %d: got %d entries, want %d (the unknowns next to the body, in order)", k, len(bk.Index), len(want))
+				}
+				for q, v := range bk.Val {
+					if !(v > 0) || !isFinite(v) {
+						t.Errorf("body %d: entry %d (unknown %d) = %g, want positive and finite", k, q, bk.Index[q], v)
+					}
+				}
+				if len(want) == 0 || 20*len(want) > n {
+					t.Errorf("body %d: %d entries of %d unknowns, want some, and far fewer than the unknowns", k, len(want), n)
+				}
+				dense := make([]float64, n)
+				for i := range dense {
+					dense[i] = math.NaN() // DenseTo must write every entry
+				}
+				bk.DenseTo(dense)
+				nonzero := 0
+				for u, v := range dense {
+					if v != 0 {
+						nonzero++
+						if q, ok := slices.BinarySearch(bk.Index, int32(u)); !ok || bk.Val[q] != v {
+							t.Fatalf("body %d: dense entry %d = %g is not a stored entry", k, u, v)
+						}
+					}
+				}
+				if nonzero != len(bk.Index) {
+					t.Errorf("body %d: DenseTo gave %d non-zeros, want %d", k, nonzero, len(bk.Index))
+				}
+			}
+		})
+	}
+	t.Run("misuse panics", func(t *testing.T) {
+		v := SparseVector{N: 4}
+		v.add(2, 1)
+		expectPanic(t, "index 1 after 2", func() { v.add(1, 1) })
+		expectPanic(t, "len(dst) = 3, want 4", func() { v.DenseTo(make([]float64, 3)) })
+	})
+}
+
 func TestMultigridPsiIterationsFlat(t *testing.T) {
 	passages := append(slices.Clone(mgPassages),
 		// A thin gap: the cylinder 0.02 (1 to 5 cells) above the lower wall.
@@ -141,7 +230,7 @@ func TestMultigridPsiIterationsFlat(t *testing.T) {
 					t.Fatal(err)
 				}
 				worst := 0
-				for k, b := range append([][]float64{sys.B0}, sys.BK...) {
+				for k, b := range psiRightHandSides(sys) {
 					x := make([]float64, len(b))
 					st, err := BiCGStab(context.Background(), sys.A, b, x, mg, nil)
 					if err != nil {
@@ -177,7 +266,7 @@ func TestMultigridPsiMatchesJacobi(t *testing.T) {
 				t.Fatal(err)
 			}
 			set := &Settings{Tolerance: solveTol}
-			for k, b := range append([][]float64{sys.B0}, sys.BK...) {
+			for k, b := range psiRightHandSides(sys) {
 				xm := make([]float64, len(b))
 				if _, err := BiCGStab(context.Background(), sys.A, b, xm, mg, set); err != nil {
 					t.Fatal(err)

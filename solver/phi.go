@@ -553,16 +553,21 @@ type PhiSolution struct {
 func SolvePhi(ctx context.Context, sys *PhiSystem, method string, set *Settings) (*PhiSolution, error) {
 	start := time.Now()
 	var solve func(x []float64) (Stats, error)
+	// The CG work vectors are reserved with the preconditioner, so that Setup, not Solve, pays
+	// for fresh memory.
+	var ws Workspace
 	switch method {
 	case MethodKrylov:
 		jac := NewJacobi(sys.A)
-		solve = func(x []float64) (Stats, error) { return CG(ctx, sys.A, sys.B, x, jac, set) }
+		ws.ReserveCG(sys.A.N)
+		solve = func(x []float64) (Stats, error) { return ws.CG(ctx, sys.A, sys.B, x, jac, set) }
 	case MethodAuto, MethodMG, "":
 		mg, err := NewMultigrid(sys.A, sys.Mesh.Grid, sys.Nodes, MGOptions{Symmetric: true})
 		if err != nil {
 			return nil, fmt.Errorf("velocity potential: %w", err)
 		}
-		solve = func(x []float64) (Stats, error) { return CG(ctx, sys.A, sys.B, x, mg, set) }
+		ws.ReserveCG(sys.A.N)
+		solve = func(x []float64) (Stats, error) { return ws.CG(ctx, sys.A, sys.B, x, mg, set) }
 	case MethodSOR:
 		g := sys.Mesh.Grid
 		sor := &SOR{Omega: OptimalOmega(g.NX-1, g.NY-1), Red: sys.Red, Black: sys.Black}

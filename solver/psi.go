@@ -34,10 +34,43 @@ type PsiSystem struct {
 	Unknown []int32
 	// Nodes maps an unknown index back to its node.
 	Nodes []int32
-	B0    []float64   // right-hand side with every body at ψ = 0
-	BK    [][]float64 // right-hand side of body k at ψ = 1 with everything else at 0
-	Red   []int32     // unknowns with i + j even
-	Black []int32     // unknowns with i + j odd
+	B0    []float64 // right-hand side with every body at ψ = 0
+	// BK is the right-hand side of body k at ψ = 1 with everything else at 0. It is non-zero only
+	// in the rows next to the body, so it is stored by those entries.
+	BK []SparseVector
+}
+
+// SparseVector is a vector of length N that stores only its non-zero entries: Val[q] at index
+// Index[q], with Index strictly increasing.
+type SparseVector struct {
+	N     int
+	Index []int32
+	Val   []float64
+}
+
+// DenseTo writes v into dst, the zeros included. It panics if len(dst) is not v.N.
+func (v *SparseVector) DenseTo(dst []float64) {
+	if len(dst) != v.N {
+		panic(fmt.Sprintf("solver: SparseVector.DenseTo: len(dst) = %d, want %d", len(dst), v.N))
+	}
+	clear(dst)
+	for q, i := range v.Index {
+		dst[i] = v.Val[q]
+	}
+}
+
+// add adds c to entry i, which must not lie before the last stored entry.
+func (v *SparseVector) add(i int, c float64) {
+	last := len(v.Index) - 1
+	switch {
+	case last >= 0 && int(v.Index[last]) == i:
+		v.Val[last] += c
+	case last < 0 || int(v.Index[last]) < i:
+		v.Index = append(v.Index, int32(i))
+		v.Val = append(v.Val, c)
+	default:
+		panic(fmt.Sprintf("solver: SparseVector.add: index %d after %d", i, v.Index[last]))
+	}
 }
 
 // AssemblePsi builds the ψ system of mesh m under conditions s.
@@ -54,11 +87,6 @@ func AssemblePsi(m *mesh.Mesh, s *bc.Set) (*PsiSystem, error) {
 			if m.Kind[k] == mesh.Fluid && !(s.Outer != nil && i == g.NX-1) {
 				sys.Unknown[k] = int32(len(sys.Nodes))
 				sys.Nodes = append(sys.Nodes, int32(k))
-				if (i+j)%2 == 0 {
-					sys.Red = append(sys.Red, int32(len(sys.Nodes)-1))
-				} else {
-					sys.Black = append(sys.Black, int32(len(sys.Nodes)-1))
-				}
 			}
 		}
 	}
@@ -70,9 +98,9 @@ func AssemblePsi(m *mesh.Mesh, s *bc.Set) (*PsiSystem, error) {
 	if s.Prescribed != nil {
 		nb = 0
 	}
-	sys.BK = make([][]float64, nb)
+	sys.BK = make([]SparseVector, nb)
 	for b := range sys.BK {
-		sys.BK[b] = make([]float64, n)
+		sys.BK[b].N = n
 	}
 	bld := NewBuilder(n, 5*n)
 	for row, node := range sys.Nodes {
@@ -130,7 +158,7 @@ func AssemblePsi(m *mesh.Mesh, s *bc.Set) (*PsiSystem, error) {
 // own right-hand side when its ψ is an unknown constant, else with its known value.
 func (sys *PsiSystem) addKnown(row int, c float64, boundary int, p mesh.Point) {
 	if boundary >= 2 && sys.BC.Prescribed == nil {
-		sys.BK[boundary-2][row] += c
+		sys.BK[boundary-2].add(row, c) // rows come in increasing order
 		return
 	}
 	sys.B0[row] += c * sys.knownValue(boundary, p, 0)
@@ -232,9 +260,14 @@ func SolvePsi(ctx context.Context, sys *PsiSystem, method string, set *Settings)
 		return sol, fmt.Errorf("stream function (bodies at ψ = 0): %w", err)
 	}
 	xk := make([][]float64, nb)
+	var bk []float64 // body b's right-hand side, expanded for the solve; one serves every body
+	if nb > 0 {
+		bk = make([]float64, n)
+	}
 	for b := range nb {
 		xk[b] = make([]float64, n)
-		st, err := solve(ctx, sys.BK[b], xk[b], set)
+		sys.BK[b].DenseTo(bk)
+		st, err := solve(ctx, bk, xk[b], set)
 		sol.Solves = append(sol.Solves, st)
 		if err != nil {
 			return sol, fmt.Errorf("stream function (body %q at ψ = 1): %w", m.Geom.Bodies[b].Name, err)
@@ -298,31 +331,51 @@ func (sys *PsiSystem) closureRow(b int, c contour, x0 []float64, xk [][]float64)
 	return row, cond.Circulation - c.circulationOf(sys, x0, -1, b), nil
 }
 
-// solverFor returns the linear solve of the chosen method.
+// solverFor returns the linear solve of the chosen method. Its preconditioner and its Krylov
+// work vectors are made here, once, and shared by all the superposition solves.
 func (sys *PsiSystem) solverFor(method string) (func(ctx context.Context, b, x []float64, s *Settings) (Stats, error), error) {
 	switch method {
 	case MethodAuto, MethodMG, "":
-		// BiCGStab with a multigrid V-cycle; one hierarchy serves all the superposition solves.
+		// BiCGStab with a multigrid V-cycle.
 		mg, err := NewMultigrid(sys.A, sys.Mesh.Grid, sys.Nodes, MGOptions{})
 		if err != nil {
 			return nil, fmt.Errorf("stream function: %w", err)
 		}
+		ws := new(Workspace)
+		ws.ReserveBiCGStab(sys.A.N)
 		return func(ctx context.Context, b, x []float64, s *Settings) (Stats, error) {
-			return BiCGStab(ctx, sys.A, b, x, mg, s)
+			return ws.BiCGStab(ctx, sys.A, b, x, mg, s)
 		}, nil
 	case MethodKrylov:
 		jac := NewJacobi(sys.A)
+		ws := new(Workspace)
+		ws.ReserveBiCGStab(sys.A.N)
 		return func(ctx context.Context, b, x []float64, s *Settings) (Stats, error) {
-			return BiCGStab(ctx, sys.A, b, x, jac, s)
+			return ws.BiCGStab(ctx, sys.A, b, x, jac, s)
 		}, nil
 	case MethodSOR:
 		g := sys.Mesh.Grid
-		sor := &SOR{Omega: OptimalOmega(g.NX-1, g.NY-1), Red: sys.Red, Black: sys.Black}
+		red, black := sys.redBlack()
+		sor := &SOR{Omega: OptimalOmega(g.NX-1, g.NY-1), Red: red, Black: black}
 		return func(ctx context.Context, b, x []float64, s *Settings) (Stats, error) {
 			return sor.Solve(ctx, sys.A, b, x, s)
 		}, nil
 	}
 	return nil, fmt.Errorf("%w %q (allowed: auto, mgcg, cg, sor)", ErrUnknownMethod, method)
+}
+
+// redBlack returns the unknowns of nodes with i + j even and odd, the colours of SOR (the
+// Shortley–Weller rows are five-point stencils, so no two rows of one colour couple).
+func (sys *PsiSystem) redBlack() (red, black []int32) {
+	nx := sys.Mesh.Grid.NX
+	for u, node := range sys.Nodes {
+		if i, j := int(node)%nx, int(node)/nx; (i+j)%2 == 0 {
+			red = append(red, int32(u))
+		} else {
+			black = append(black, int32(u))
+		}
+	}
+	return red, black
 }
 
 // initialGuess fills x with ψ rising linearly between the walls at every x: exact for an empty

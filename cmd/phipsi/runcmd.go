@@ -6,6 +6,7 @@ import (
 	"io"
 	"os"
 	"path/filepath"
+	"runtime/debug"
 	"slices"
 	"strings"
 	"time"
@@ -162,6 +163,16 @@ type computed struct {
 
 // compute solves the planned scenario and derives every number and picture of the run.
 func compute(ctx context.Context, plan *scenario.Plan, o *runOptions, stderr io.Writer) (*computed, error) {
+	// The grid-sized arrays hold no pointers, so a collection costs little, while the default
+	// pacing (GOGC = 100) lets the heap grow to twice its live data before collecting: the solves'
+	// freed work memory then lies idle while the next stage maps fresh pages. Collecting after
+	// 25 % growth lowers the peak (measured, median peak RSS: 1M cells 407 → 391 MB, 4M cells
+	// 1689 → 1458 MB, 16M cells 6.19 → 5.85 GB) with no change in run time beyond the noise
+	// (1M cells: median of 12 runs 4.19 s against 4.18 s). A GOGC set in the environment wins.
+	const gcPercent = 25
+	if os.Getenv("GOGC") == "" {
+		defer debug.SetGCPercent(debug.SetGCPercent(gcPercent))
+	}
 	sc := plan.Scenario
 	m, set, err := plan.Build()
 	if err != nil {
