@@ -21,13 +21,14 @@ type Plan struct {
 
 // EstimateMemory returns the estimated peak memory of a run on grid g with the given number of
 // bodies, bytes. The model is fitted to peaks measured with /usr/bin/time on the bundled
-// scenarios (240k to 920k nodes, within 12 % of each): about 360 B per node for the
-// classification, the ψ and φ systems, the multigrid hierarchy, the Krylov work vectors, the
-// solution and derived fields and the collector's headroom, 60 B per node for each body's extra
-// right-hand side and solution vector, and a fixed 80 MiB for the program, its pictures and tables.
+// scenarios (240k to 920k nodes) and a 4M-node channel (all within 20 %): about 270 B per node for
+// the classification, the ψ and φ systems, the multigrid hierarchy, the shared Krylov workspace,
+// the solution and derived fields and the collector's headroom, 60 B per node for each body's
+// solution vector and its share of the rest, and a fixed 40 MiB for the program, its pictures and
+// tables.
 func EstimateMemory(g mesh.Grid, bodies int) int64 {
-	perNode := 360 + 60*bodies
-	return int64(g.Len())*int64(perNode) + 80<<20
+	perNode := 270 + 60*bodies
+	return int64(g.Len())*int64(perNode) + 40<<20
 }
 
 // Plan builds the geometry, checks it (walls that cross, bodies outside the channel, touching a
