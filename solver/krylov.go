@@ -69,9 +69,13 @@ type Stats struct {
 	Restarts int
 }
 
+// cgStallLimit is how many successive restarts of CG may fail to halve the true residual before
+// the solve is reported as stalled.
+const cgStallLimit = 3
+
 // ErrNotConverged is returned, possibly wrapped, when a solve used up its iterations before the
-// relative residual reached the tolerance. x then holds the best iterate found and Stats its true
-// residual.
+// relative residual reached the tolerance, or stalled on its rounding floor. x then holds the best
+// iterate found and Stats its true residual.
 var ErrNotConverged = errors.New("solver: not converged")
 
 // ErrBreakdown is returned, wrapped, when an iteration cannot continue: a value became NaN or
@@ -256,7 +260,9 @@ func touchPages(v []float64) {
 //
 // The solve stops when the recursively updated relative residual ‖r‖/‖b‖ reaches the tolerance
 // and the true residual ‖b − A x‖/‖b‖, then recomputed, confirms it; when it does not, CG
-// restarts from the true residual. If ‖b‖ = 0, x is set to 0 and CG returns at once.
+// restarts from the true residual; after cgStallLimit such restarts in a row that do not halve the
+// true residual it returns ErrNotConverged (the tolerance lies below the rounding floor). If
+// ‖b‖ = 0, x is set to 0 and CG returns at once.
 //
 // Errors: ErrNotConverged (wrapped) after MaxIterations; ErrBreakdown (wrapped) on p·Ap ≤ 0,
 // r·M⁻¹r ≤ 0 or a non-finite value; ctx.Err() (wrapped) when ctx is done, checked every
@@ -331,6 +337,7 @@ func (w *Workspace) CG(ctx context.Context, a Operator, b, x []float64, m Precon
 		return finish(fmt.Errorf("%w: %s: r·M⁻¹r = %g is not positive: the preconditioner is not positive definite", ErrBreakdown, method, rho))
 	}
 
+	stalls, lastTrue := 0, math.Inf(1)
 	for it := 1; it <= cfg.MaxIterations; it++ {
 		if err := ctx.Err(); err != nil {
 			return finish(fmt.Errorf("solver: %s stopped after %d iterations: %w", method, st.Iterations, err))
@@ -360,6 +367,18 @@ func (w *Workspace) CG(ctx context.Context, a Operator, b, x []float64, m Precon
 				st.Residual = trueRes
 				st.Converged = true
 				return st, nil
+			}
+			// The recursive residual passed and the true one did not. If that keeps happening
+			// without the true residual halving, the solve sits on its rounding floor: report
+			// it as not converged rather than restart until the iteration limit.
+			if trueRes > 0.5*lastTrue {
+				stalls++
+			} else {
+				stalls = 0
+			}
+			lastTrue = trueRes
+			if stalls >= cgStallLimit {
+				return finish(fmt.Errorf("%w: %s: the true residual stays at %.3g above the tolerance %.3g (rounding floor) after %d restarts", ErrNotConverged, method, trueRes, cfg.Tolerance, st.Restarts))
 			}
 			st.Restarts++
 			if rho, err = start(); err != nil {
