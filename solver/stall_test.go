@@ -25,7 +25,7 @@ func TestCGStallIsNotConverged(t *testing.T) {
 	a := bld.CSR()
 	b := make([]float64, n)
 	for i := range b {
-		b[i] = 1 / (1 + float64(i%7)) + 0.3*float64(i%3)/3.7 // inexact in binary
+		b[i] = 1/(1+float64(i%7)) + 0.3*float64(i%3)/3.7 // inexact in binary
 	}
 	x := make([]float64, n)
 	st, err := CG(context.Background(), a, b, x, NewJacobi(a), &Settings{Tolerance: 1e-19, MaxIterations: 100000})
