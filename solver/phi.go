@@ -551,6 +551,9 @@ type PhiSolution struct {
 // pieces of a cell share its node and never couple, as it requires), MethodSOR for red–black SOR.
 // On ErrNotConverged the solution holds the best iterate and the error is returned with it.
 func SolvePhi(ctx context.Context, sys *PhiSystem, method string, set *Settings) (*PhiSolution, error) {
+	if sys.A == nil {
+		return nil, errReleased
+	}
 	start := time.Now()
 	var solve func(x []float64) (Stats, error)
 	// The CG work vectors are reserved with the preconditioner, so that Setup, not Solve, pays
@@ -585,6 +588,14 @@ func SolvePhi(ctx context.Context, sys *PhiSystem, method string, set *Settings)
 		return sol, fmt.Errorf("velocity potential: %w", err)
 	}
 	return sol, nil
+}
+
+// Release drops the matrix, the right-hand side, the initial guess and the colour lists, which
+// only the solves use, so that a run can reuse their memory for the next stage; the maps, faces,
+// cuts and prescribed values stay, which is all that reading a solution needs. SolvePhi refuses a
+// released system.
+func (sys *PhiSystem) Release() {
+	sys.A, sys.B, sys.X0, sys.Red, sys.Black = nil, nil, nil, nil, nil
 }
 
 // expand returns φ at every node from the unknowns x.

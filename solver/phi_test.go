@@ -5,6 +5,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"slices"
 	"testing"
 
 	"gonum.org/v1/gonum/mat"
@@ -448,5 +449,40 @@ func TestSolvePhiMethods(t *testing.T) {
 		if !tt.ok && !errors.Is(err, ErrUnknownMethod) {
 			t.Errorf("method %q: error %v, want ErrUnknownMethod", tt.method, err)
 		}
+	}
+}
+
+// TestReleasedSystemsRefuseSolves checks that a released system cannot be solved again, and that
+// its solution can still be read afterwards: the released parts are the solves' alone.
+func TestReleasedSystemsRefuseSolves(t *testing.T) {
+	m := phiMesh(t, 2, 0, 0.5, 0.05, mesh.Body{Name: "c", Shape: mesh.NewCircle(mesh.Point{X: 0.8, Y: 0.25}, 0.1)})
+	s := phiBC(t, m, 1)
+	psiSys, err := AssemblePsi(m, s)
+	if err != nil {
+		t.Fatal(err)
+	}
+	psi, err := SolvePsi(context.Background(), psiSys, MethodAuto, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	psiSys.Release()
+	if _, err := SolvePsi(context.Background(), psiSys, MethodAuto, nil); err == nil {
+		t.Error("SolvePsi of a released system: no error")
+	}
+	phiSys, err := AssemblePhi(m, s, psi.Circulation, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	phi, err := SolvePhi(context.Background(), phiSys, MethodAuto, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	want := slices.Clone(phi.Phi)
+	phiSys.Release()
+	if _, err := SolvePhi(context.Background(), phiSys, MethodAuto, nil); err == nil {
+		t.Error("SolvePhi of a released system: no error")
+	}
+	if got := phiSys.expand(phi.X); !slices.Equal(got, want) {
+		t.Error("φ read from the released system differs from φ before the release")
 	}
 }

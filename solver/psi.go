@@ -73,6 +73,13 @@ func (v *SparseVector) add(i int, c float64) {
 	}
 }
 
+// Release drops the matrix and the right-hand sides, which only the solves use, so that a run can
+// reuse their memory for the next stage; the maps, the mesh and the conditions stay, which is all
+// that deriving the flow from a solution needs. SolvePsi refuses a released system.
+func (sys *PsiSystem) Release() {
+	sys.A, sys.B0, sys.BK = nil, nil, nil
+}
+
 // AssemblePsi builds the ψ system of mesh m under conditions s.
 func AssemblePsi(m *mesh.Mesh, s *bc.Set) (*PsiSystem, error) {
 	g := m.Grid
@@ -81,6 +88,13 @@ func AssemblePsi(m *mesh.Mesh, s *bc.Set) (*PsiSystem, error) {
 	for k := range sys.Unknown {
 		sys.Unknown[k] = -1
 	}
+	fluid := 0
+	for _, kind := range m.Kind {
+		if kind == mesh.Fluid {
+			fluid++
+		}
+	}
+	sys.Nodes = make([]int32, 0, fluid)
 	for j := 0; j < g.NY; j++ {
 		for i := 1; i < g.NX; i++ {
 			k := g.Index(i, j)
@@ -221,6 +235,9 @@ const (
 	MethodMG     = "mgcg" // multigrid-preconditioned Krylov
 )
 
+// errReleased is returned for a solve of a system whose matrix has been released.
+var errReleased = errors.New("solver: the system has been released and cannot be solved again")
+
 // ErrUnknownMethod is returned for a method name the solver does not know or does not have.
 var ErrUnknownMethod = errors.New("solver: unknown method")
 
@@ -235,6 +252,9 @@ type closure struct {
 // matrix, same preconditioner), then the body constants from one condition per body (given
 // circulation, or the Kutta condition) as a small dense system, and the combined field.
 func SolvePsi(ctx context.Context, sys *PsiSystem, method string, set *Settings) (*PsiSolution, error) {
+	if sys.A == nil {
+		return nil, errReleased
+	}
 	m := sys.Mesh
 	nb := len(sys.BK)
 	start := time.Now()

@@ -154,6 +154,7 @@ func solveGrid(ctx context.Context, plan *scenario.Plan, prog *progress) (*solve
 	if err != nil {
 		return nil, err
 	}
+	sys.Release() // the next grid's stages reuse the matrix's pages
 	if err := ctx.Err(); err != nil {
 		return nil, err
 	}
