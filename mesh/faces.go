@@ -4,6 +4,8 @@ import (
 	"fmt"
 	"math"
 	"slices"
+
+	"phipsi/internal/pages"
 )
 
 // Faces describes the dual cells of a mesh, for finite-volume schemes whose unknowns live at the
@@ -143,7 +145,7 @@ func (f *Faces) Pieces(k int) int { return int(f.pieces[k]) }
 func NewFaces(m *Mesh) (*Faces, error) {
 	g := m.Grid
 	n := g.Len()
-	f := &Faces{Grid: g, state: make([]int32, 2*n+g.NY), pieces: make([]uint8, n)}
+	f := &Faces{Grid: g, state: pages.Make[int32](2*n + g.NY), pieces: pages.Make[uint8](n)}
 	for q := range f.state {
 		f.state[q] = faceClosed
 	}

@@ -4,6 +4,8 @@ import (
 	"fmt"
 	"math"
 	"slices"
+
+	"phipsi/internal/pages"
 )
 
 // Kind classifies a node.
@@ -119,7 +121,7 @@ func Build(geo *Geometry, g Grid) (*Mesh, error) {
 		return nil, fmt.Errorf("mesh: geometry needs both walls")
 	}
 	n := g.Len()
-	m := &Mesh{Grid: g, Geom: geo, Kind: make([]Kind, n), Owner: make([]int16, n), cutIdx: make([]int32, n)}
+	m := &Mesh{Grid: g, Geom: geo, Kind: pages.Make[Kind](n), Owner: pages.Make[int16](n), cutIdx: pages.Make[int32](n)}
 	m.classify()
 	cuts := m.crossings()
 	m.arms(cuts)

@@ -5,6 +5,8 @@ import (
 	"math"
 	"slices"
 	"sort"
+
+	"phipsi/internal/pages"
 )
 
 // CSR is a square sparse matrix in compressed sparse row form. Row i holds the entries
@@ -238,12 +240,16 @@ func NewBuilder(n, nnzHint int) *Builder {
 	}
 	nnzHint = max(nnzHint, 0)
 	rowPtr := make([]int, 1, n+1)
-	return &Builder{
+	b := &Builder{
 		n:      n,
 		rowPtr: rowPtr,
 		col:    make([]int32, 0, nnzHint),
 		val:    make([]float64, 0, nnzHint),
 	}
+	pages.Touch(b.rowPtr)
+	pages.Touch(b.col)
+	pages.Touch(b.val)
+	return b
 }
 
 // Row returns the index of the row that Add currently adds to: the number of rows ended so far.

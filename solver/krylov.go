@@ -5,6 +5,8 @@ import (
 	"errors"
 	"fmt"
 	"math"
+
+	"phipsi/internal/pages"
 )
 
 // Default settings of a solve, used where a Settings field is zero.
@@ -225,7 +227,7 @@ func (w *Workspace) ReserveBiCGStab(n int) {
 // reserve grows w to size values and touches the new memory.
 func (w *Workspace) reserve(size int) {
 	if w.grow(size) {
-		touchPages(w.buf)
+		pages.Touch(w.buf)
 	}
 }
 
@@ -242,16 +244,6 @@ func (w *Workspace) grow(size int) bool {
 // vector returns work vector i of length n; its capacity ends where vector i + 1 begins.
 func (w *Workspace) vector(i, n int) []float64 {
 	return w.buf[i*n : (i+1)*n : (i+1)*n]
-}
-
-// touchPages writes a zero into every 4 KiB page of v (freshly allocated, so zero already), which
-// makes the operating system map the pages now rather than inside the first solve that writes
-// them.
-func touchPages(v []float64) {
-	const perPage = 4096 / 8
-	for i := 0; i < len(v); i += perPage {
-		v[i] = 0
-	}
 }
 
 // CG solves A x = b by the conjugate gradient method, preconditioned by m when m is not nil

@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"runtime"
 
+	"phipsi/internal/pages"
 	"phipsi/mesh"
 )
 
@@ -197,7 +198,7 @@ func NewMultigrid(a *CSR, g mesh.Grid, nodes []int32, o MGOptions) (*Multigrid, 
 	for _, lv := range mg.levels[:len(mg.levels)-1] {
 		size = max(size, len(lv.x))
 	}
-	shared := make([]float64, size)
+	shared := pages.Make[float64](size)
 	for l, lv := range mg.levels {
 		lv.r = shared[:min(len(shared), len(lv.x))]
 		if l == 0 {

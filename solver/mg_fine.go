@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"slices"
 
+	"phipsi/internal/pages"
 	"phipsi/mesh"
 )
 
@@ -114,7 +115,7 @@ func newFineLevel(a *CSR, g mesh.Grid, nodes []int32) (*fineLevel, error) {
 			}
 		}
 	}
-	f.r = make([]float64, f.stride*(ny+3))
+	f.r = pages.Make[float64](f.stride * (ny + 3))
 	f.blockRows = blockRowsFor(nx)
 	f.nblocks = ceilDiv(ny, f.blockRows)
 	return f, nil

@@ -2,6 +2,8 @@ package solver
 
 import (
 	"fmt"
+
+	"phipsi/internal/pages"
 )
 
 // Kernels of a coarse level, run block by block by gridLevel.runBlock.
@@ -53,10 +55,10 @@ func newGridLevel(nx, ny int) *gridLevel {
 	size := sx * (ny + 3)
 	lv := &gridLevel{
 		nx: nx, ny: ny, sx: sx,
-		st64: make([]stencil64, size),
-		invD: make([]float64, size),
-		x:    make([]float64, size),
-		b:    make([]float64, size),
+		st64: pages.Make[stencil64](size),
+		invD: pages.Make[float64](size),
+		x:    pages.Make[float64](size),
+		b:    pages.Make[float64](size),
 	}
 	lv.blockRows = blockRowsFor(nx)
 	lv.nblocks = ceilDiv(ny, lv.blockRows)
@@ -298,7 +300,7 @@ func (lv *gridLevel) finish(symmetric bool) error {
 			}
 		}
 	}
-	lv.st = make([]stencil, len(lv.st64))
+	lv.st = pages.Make[stencil](len(lv.st64))
 	for k, s := range lv.st64 {
 		if lv.invD[k] == 0 {
 			continue

@@ -7,6 +7,7 @@ import (
 	"time"
 
 	"phipsi/bc"
+	"phipsi/internal/pages"
 	"phipsi/mesh"
 )
 
@@ -296,8 +297,8 @@ func AssemblePhi(m *mesh.Mesh, s *bc.Set, circulation []float64, opt *PhiOptions
 	}
 	g := m.Grid
 	n := g.Len()
-	sys := &PhiSystem{Mesh: m, BC: s, Faces: faces, Cuts: cuts, Unknown: make([]int32, n),
-		Dirichlet: make([]bool, n), Known: make([]float64, n)}
+	sys := &PhiSystem{Mesh: m, BC: s, Faces: faces, Cuts: cuts, Unknown: pages.Make[int32](n),
+		Dirichlet: pages.Make[bool](n), Known: pages.Make[float64](n)}
 
 	// Prescribed values: the outlet column, or the whole outer ring with Outer.
 	for j := range g.NY {
@@ -344,7 +345,7 @@ func AssemblePhi(m *mesh.Mesh, s *bc.Set, circulation []float64, opt *PhiOptions
 	if nu == 0 {
 		return nil, fmt.Errorf("solver: the φ problem has no unknowns")
 	}
-	sys.B = make([]float64, nu)
+	sys.B = pages.Make[float64](nu)
 	inflow := make([]float64, nu)
 	anchored := make([]bool, nu) // couples to a prescribed value
 	bld := NewBuilder(nu, 5*nu)
@@ -429,7 +430,7 @@ func AssemblePhi(m *mesh.Mesh, s *bc.Set, circulation []float64, opt *PhiOptions
 	for _, f := range inflow {
 		sys.Inflow += f
 	}
-	sys.X0 = make([]float64, nu)
+	sys.X0 = pages.Make[float64](nu)
 	if o.Outer == nil {
 		sys.initialGuess()
 	}
@@ -601,7 +602,7 @@ func (sys *PhiSystem) Release() {
 // expand returns φ at every node from the unknowns x.
 func (sys *PhiSystem) expand(x []float64) []float64 {
 	m := sys.Mesh
-	phi := make([]float64, m.Len())
+	phi := pages.Make[float64](m.Len())
 	for k := range phi {
 		switch {
 		case !m.IsFluid(k):

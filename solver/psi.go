@@ -10,6 +10,7 @@ import (
 	"gonum.org/v1/gonum/mat"
 
 	"phipsi/bc"
+	"phipsi/internal/pages"
 	"phipsi/mesh"
 )
 
@@ -84,7 +85,7 @@ func (sys *PsiSystem) Release() {
 func AssemblePsi(m *mesh.Mesh, s *bc.Set) (*PsiSystem, error) {
 	g := m.Grid
 	nb := len(m.Geom.Bodies)
-	sys := &PsiSystem{Mesh: m, BC: s, Unknown: make([]int32, g.Len())}
+	sys := &PsiSystem{Mesh: m, BC: s, Unknown: pages.Make[int32](g.Len())}
 	for k := range sys.Unknown {
 		sys.Unknown[k] = -1
 	}
@@ -108,7 +109,7 @@ func AssemblePsi(m *mesh.Mesh, s *bc.Set) (*PsiSystem, error) {
 	if n == 0 {
 		return nil, fmt.Errorf("solver: the mesh has no fluid nodes")
 	}
-	sys.B0 = make([]float64, n)
+	sys.B0 = pages.Make[float64](n)
 	if s.Prescribed != nil {
 		nb = 0
 	}
@@ -271,7 +272,7 @@ func SolvePsi(ctx context.Context, sys *PsiSystem, method string, set *Settings)
 	sol := &PsiSolution{Sys: sys, Setup: time.Since(start)}
 	start = time.Now()
 	n := len(sys.Nodes)
-	x0 := make([]float64, n)
+	x0 := pages.Make[float64](n)
 	sys.initialGuess(x0)
 	st, err := solve(ctx, sys.B0, x0, set)
 	st.Method = method
@@ -282,10 +283,10 @@ func SolvePsi(ctx context.Context, sys *PsiSystem, method string, set *Settings)
 	xk := make([][]float64, nb)
 	var bk []float64 // body b's right-hand side, expanded for the solve; one serves every body
 	if nb > 0 {
-		bk = make([]float64, n)
+		bk = pages.Make[float64](n)
 	}
 	for b := range nb {
-		xk[b] = make([]float64, n)
+		xk[b] = pages.Make[float64](n)
 		sys.BK[b].DenseTo(bk)
 		st, err := solve(ctx, bk, xk[b], set)
 		sol.Solves = append(sol.Solves, st)
@@ -416,7 +417,7 @@ func (sys *PsiSystem) initialGuess(x []float64) {
 func (sys *PsiSystem) expand(x, bodyPsi []float64) []float64 {
 	m := sys.Mesh
 	g := m.Grid
-	psi := make([]float64, g.Len())
+	psi := pages.Make[float64](g.Len())
 	for k := range psi {
 		i, j := k%g.NX, k/g.NX
 		switch {

@@ -15,6 +15,7 @@ import (
 // mesh < bc < solver < solver/flow < cmd/internal/* < cmd/phipsi: a package may import only
 // packages of a lower layer (cmd/internal/report may use the scenario it reports on).
 var layers = map[string]int{
+	"phipsi/internal/pages":        -1,
 	"phipsi/mesh":                  0,
 	"phipsi/bc":                    1,
 	"phipsi/solver":                2,

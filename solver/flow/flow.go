@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"math"
 
+	"phipsi/internal/pages"
 	"phipsi/mesh"
 	"phipsi/solver"
 )
@@ -128,8 +129,8 @@ func velocityField(sol *solver.PsiSolution, fl Fluid) *Field {
 	m := sys.Mesh
 	g := m.Grid
 	n := g.Len()
-	f := &Field{Grid: g, Valid: make([]bool, n), U: make([]float64, n), V: make([]float64, n),
-		Speed: make([]float64, n), Cp: make([]float64, n), Pressure: make([]float64, n)}
+	f := &Field{Grid: g, Valid: pages.Make[bool](n), U: pages.Make[float64](n), V: pages.Make[float64](n),
+		Speed: pages.Make[float64](n), Cp: pages.Make[float64](n), Pressure: pages.Make[float64](n)}
 	U := sys.BC.Speed
 	psi := sol.Psi
 	h := g.H
