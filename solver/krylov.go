@@ -69,6 +69,10 @@ type Stats struct {
 	// Restarts counts how often a Krylov method started afresh from the true residual: after a
 	// near-breakdown or when the recursive residual passed the test but the true one did not.
 	Restarts int
+	// Floor reports a CG solve that stopped on the rounding floor of its residual (see
+	// roundingFloor) above the tolerance: Converged is then true, as no further digit of x can
+	// be had in float64, and Residual is above Tolerance.
+	Floor bool
 }
 
 // cgStallLimit is how many successive restarts of CG may fail to halve the true residual before
@@ -122,6 +126,37 @@ func residualTo(a Operator, dst, b, x []float64) float64 {
 		}
 		return sq
 	}))
+}
+
+// roundingFloor returns ‖(k+1)ε(|b| + |A||x|)‖₂, k the most entries in a row of A: the bound on
+// the rounding error of b − A x computed in floating point (Higham, Accuracy and Stability of
+// Numerical Algorithms, 2nd ed., 2002, §3.5, with γ_{k+1} ≈ (k+1)ε), so a true residual below
+// it carries no information about x. It uses dst for |A||x| and reports false for an operator
+// that is not a *CSR.
+func roundingFloor(a Operator, dst, b, x []float64) (float64, bool) {
+	c, ok := a.(*CSR)
+	if !ok {
+		return 0, false
+	}
+	k := 0
+	for i := range c.N {
+		k = max(k, c.RowPtr[i+1]-c.RowPtr[i])
+	}
+	const eps = 0x1p-53
+	g := float64(k+1) * eps
+	sq := sumBlocks(c.N, func(lo, hi int) float64 {
+		var sq float64
+		for i := lo; i < hi; i++ {
+			s := math.Abs(b[i])
+			for q := c.RowPtr[i]; q < c.RowPtr[i+1]; q++ {
+				s += math.Abs(c.Val[q] * x[c.Col[q]])
+			}
+			dst[i] = g * s
+			sq += dst[i] * dst[i]
+		}
+		return sq
+	})
+	return math.Sqrt(sq), true
 }
 
 // mulVecDot computes dst = A x and returns y·dst.
@@ -253,7 +288,9 @@ func (w *Workspace) vector(i, n int) []float64 {
 // The solve stops when the recursively updated relative residual ‖r‖/‖b‖ reaches the tolerance
 // and the true residual ‖b − A x‖/‖b‖, then recomputed, confirms it; when it does not, CG
 // restarts from the true residual; after cgStallLimit such restarts in a row that do not halve the
-// true residual it returns ErrNotConverged (the tolerance lies below the rounding floor). If
+// true residual it stops: converged with Stats.Floor set when the true residual lies within the
+// rounding error of computing it (roundingFloor), which happens on fine grids whose ‖b‖ is small
+// beside ‖A‖‖x‖, and ErrNotConverged otherwise (the tolerance lies below what x can give). If
 // ‖b‖ = 0, x is set to 0 and CG returns at once.
 //
 // Errors: ErrNotConverged (wrapped) after MaxIterations; ErrBreakdown (wrapped) on p·Ap ≤ 0,
@@ -370,6 +407,11 @@ func (w *Workspace) CG(ctx context.Context, a Operator, b, x []float64, m Precon
 			}
 			lastTrue = trueRes
 			if stalls >= cgStallLimit {
+				if floor, ok := roundingFloor(a, q, b, x); ok && trueRes <= floor/bnorm {
+					st.Residual = trueRes
+					st.Converged, st.Floor = true, true
+					return st, nil
+				}
 				return finish(fmt.Errorf("%w: %s: the true residual stays at %.3g above the tolerance %.3g (rounding floor) after %d restarts", ErrNotConverged, method, trueRes, cfg.Tolerance, st.Restarts))
 			}
 			st.Restarts++

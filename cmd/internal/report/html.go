@@ -295,9 +295,12 @@ func (p *page) scenarioFacts(f *formatter, sc *scenario.Scenario) {
 		so.Rows = append(so.Rows, fact{Label: "Cross-check, largest |V<sub>φ</sub> − V<sub>ψ</sub>|/U", Value: f.num("flow.phi_psi_mismatch", *m, percent(2)) + " % (away from walls)"})
 	}
 	p.Facts = []factGroup{fl, ch, so}
-	if s.Solve.Residual <= sc.Solver.Tolerance {
+	switch {
+	case s.Solve.Residual <= sc.Solver.Tolerance:
 		p.Convergence = "Every linear solve reached the requested tolerance."
-	} else {
+	case s.Solve.AtFloor:
+		p.Convergence = "Every linear solve reached the requested tolerance or, where the grid made that impossible, the rounding floor of double-precision arithmetic (see the notes)."
+	default:
 		p.Convergence = "The worst final residual is above the requested tolerance: treat the numbers below with care."
 	}
 }

@@ -41,6 +41,27 @@ func solveFixture(t testing.TB, key, file string, edit func(string) string) *fix
 	if f, ok := fixtures[key]; ok {
 		return f
 	}
+	input, m := solveInput(t, file, edit)
+	sc, res, phi := input.Scenario, input.Result, input.Phi
+	sum, err := NewSummary(input)
+	if err != nil {
+		t.Fatal(err)
+	}
+	imgs, err := render.Render(res, phi.Phi, render.Options{Width: sc.Output.ImageWidth, Title: sc.Title, Images: sc.Output.Images})
+	if err != nil {
+		t.Fatal(err)
+	}
+	in := HTMLInput{Summary: sum, Scenario: sc, Geometry: m.Geom}
+	for _, im := range imgs {
+		in.Figures = append(in.Figures, Figure(im))
+	}
+	return writeFixture(t, key, in)
+}
+
+// solveInput runs testdata/<file>, its text changed by edit (nil: as is), through the solves and
+// returns what NewSummary takes, with the mesh.
+func solveInput(t testing.TB, file string, edit func(string) string) (Input, *mesh.Mesh) {
+	t.Helper()
 	path := filepath.Join("testdata", file)
 	src, err := os.ReadFile(path)
 	if err != nil {
@@ -95,20 +116,8 @@ func solveFixture(t testing.TB, key, file string, edit func(string) string) *fix
 		}
 		probes = append(probes, v)
 	}
-	sum, err := NewSummary(Input{Version: "0.0.0-test", Scenario: sc, Method: sc.Solver.Method, Result: res,
-		Probes: probes, Phi: phi, Mismatch: &mismatch})
-	if err != nil {
-		t.Fatal(err)
-	}
-	imgs, err := render.Render(res, phi.Phi, render.Options{Width: sc.Output.ImageWidth, Title: sc.Title, Images: sc.Output.Images})
-	if err != nil {
-		t.Fatal(err)
-	}
-	in := HTMLInput{Summary: sum, Scenario: sc, Geometry: m.Geom}
-	for _, im := range imgs {
-		in.Figures = append(in.Figures, Figure(im))
-	}
-	return writeFixture(t, key, in)
+	return Input{Version: "0.0.0-test", Scenario: sc, Method: sc.Solver.Method, Result: res,
+		Probes: probes, Phi: phi, Mismatch: &mismatch}, m
 }
 
 // writeFixture writes the summary and the page of in and caches them under key.
@@ -855,5 +864,49 @@ func TestParsePrinted(t *testing.T) {
 		if err != nil || math.Abs(v-tc.v) > rel*math.Abs(tc.v) || math.Abs(ulp-tc.ulp) > rel*tc.ulp {
 			t.Errorf("%q: got %g ± %g (%v), want %g ± %g", tc.s, v, ulp, err, tc.v, tc.ulp)
 		}
+	}
+}
+
+// TestRoundingFloorNoted: a φ solve that stopped on its rounding floor above the tolerance is
+// named in a warning and marked in summary.json, and the page says so instead of "treat with
+// care"; a solve above the tolerance for another reason keeps the caution.
+func TestRoundingFloorNoted(t *testing.T) {
+	in, m := solveInput(t, "plain.toml", nil)
+	tol := in.Scenario.Solver.Tolerance
+	phi := *in.Phi
+	phi.Stats.Residual, phi.Stats.Floor = 3*tol, true
+	in.Phi = &phi
+	sum, err := NewSummary(in)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !sum.Solve.AtFloor {
+		t.Error("solve.at_rounding_floor = false, want true")
+	}
+	if !slices.ContainsFunc(sum.Warnings, func(w string) bool { return strings.Contains(w, "rounding floor") }) {
+		t.Errorf("no warning names the rounding floor: %q", sum.Warnings)
+	}
+	var page bytes.Buffer
+	if err := WriteHTML(&page, HTMLInput{Summary: sum, Scenario: in.Scenario, Geometry: m.Geom}); err != nil {
+		t.Fatal(err)
+	}
+	if !strings.Contains(page.String(), "rounding floor") || strings.Contains(page.String(), "treat the numbers below with care") {
+		t.Error("page: want the rounding-floor sentence and no caution about convergence")
+	}
+
+	phi.Stats.Floor = false
+	sum, err = NewSummary(in)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if sum.Solve.AtFloor {
+		t.Error("not on the floor: solve.at_rounding_floor = true")
+	}
+	page.Reset()
+	if err := WriteHTML(&page, HTMLInput{Summary: sum, Scenario: in.Scenario, Geometry: m.Geom}); err != nil {
+		t.Fatal(err)
+	}
+	if !strings.Contains(page.String(), "treat the numbers below with care") {
+		t.Error("page: a solve above the tolerance must carry the caution")
 	}
 }

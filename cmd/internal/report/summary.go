@@ -3,6 +3,7 @@ package report
 import (
 	"fmt"
 	"math"
+	"slices"
 	"time"
 
 	"phipsi/cmd/internal/scenario"
@@ -76,6 +77,9 @@ type SolveInfo struct {
 	PhiIterations int `json:"phi_iterations"`
 	// TotalSeconds is the whole run before the files are written, wall clock.
 	TotalSeconds float64 `json:"total_seconds"`
+	// AtFloor is true when a solve ended above the tolerance on the rounding floor of its
+	// residual (solver.Stats.Floor) and every other solve reached the tolerance.
+	AtFloor bool `json:"at_rounding_floor"`
 }
 
 // FlowInfo holds the channel-wide numbers.
@@ -206,6 +210,23 @@ func NewSummary(in Input) (*Summary, error) {
 		s.Solve.Seconds += p.Solve.Seconds()
 		s.Solve.SetupSeconds += p.Setup.Seconds()
 		s.Solve.PhiIterations = p.Stats.Iterations
+		if p.Stats.Floor {
+			s.warnf("the velocity-potential solve stopped at a relative residual of %.3g, above the tolerance %.3g: that is the rounding floor of double-precision arithmetic on this grid, so φ is as converged as the arithmetic allows (a coarser grid or a larger tolerance avoids this note)",
+				p.Stats.Residual, sc.Solver.Tolerance)
+		}
+	}
+	all := slices.Clone(sol.Solves)
+	if in.Phi != nil {
+		all = append(all, in.Phi.Stats)
+	}
+	for _, st := range all {
+		if st.Residual > sc.Solver.Tolerance {
+			if !st.Floor {
+				s.Solve.AtFloor = false
+				break
+			}
+			s.Solve.AtFloor = true
+		}
 	}
 	geo := m.Geom
 	outH := geo.Upper.Y(geo.Length) - geo.Lower.Y(geo.Length)
