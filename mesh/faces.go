@@ -124,6 +124,21 @@ func (f *Faces) Parts(dst []FacePart, face int) []FacePart {
 	}
 }
 
+// Fraction returns the length of part p of face number face over H. For a whole open face it is
+// exactly 1 (1/2 for the north faces of the first and last columns), not the rounded difference
+// of the part's end coordinates, so that uncut cells carry exact coefficients.
+func (f *Faces) Fraction(face int, p FacePart) float64 {
+	if f.state[face] == faceOpen {
+		if face < 2*f.Len() && face%2 == 1 {
+			if i := (face / 2) % f.NX; i == 0 || i == f.NX-1 {
+				return 0.5
+			}
+		}
+		return 1
+	}
+	return (p.B - p.A) / f.H
+}
+
 // Open returns the open length of face number face over H: 1 for a whole open face (1/2 for the
 // north faces of the first and last columns), 0 for a closed one.
 func (f *Faces) Open(face int) float64 {

@@ -107,11 +107,14 @@ func checkVectors(method string, n int, b, x []float64) {
 	}
 }
 
-// residualTo computes dst = b − A x and returns ‖dst‖₂. For a *CSR it uses one fused pass; the
-// result is the same bit for bit.
+// residualTo computes dst = b − A x and returns ‖dst‖₂. For a *CSR or *GridMatrix it uses one
+// fused pass; the result is the same bit for bit.
 func residualTo(a Operator, dst, b, x []float64) float64 {
-	if c, ok := a.(*CSR); ok {
+	switch c := a.(type) {
+	case *CSR:
 		return math.Sqrt(sumBlocks(c.N, func(lo, hi int) float64 { return c.residualRange(dst, b, x, lo, hi) }))
+	case *GridMatrix:
+		return math.Sqrt(sumBlocks(c.n, func(lo, hi int) float64 { return c.residualRange(dst, b, x, lo, hi) }))
 	}
 	a.MulVecTo(dst, x)
 	return math.Sqrt(sumBlocks(len(dst), func(lo, hi int) float64 {
@@ -132,8 +135,13 @@ func residualTo(a Operator, dst, b, x []float64) float64 {
 // the rounding error of b − A x computed in floating point (Higham, Accuracy and Stability of
 // Numerical Algorithms, 2nd ed., 2002, §3.5, with γ_{k+1} ≈ (k+1)ε), so a true residual below
 // it carries no information about x. It uses dst for |A||x| and reports false for an operator
-// that is not a *CSR.
+// that is neither a *CSR nor a *GridMatrix.
 func roundingFloor(a Operator, dst, b, x []float64) (float64, bool) {
+	const eps = 0x1p-53
+	if gm, ok := a.(*GridMatrix); ok {
+		g := float64(gm.maxRowLen()+1) * eps
+		return math.Sqrt(sumBlocks(gm.n, func(lo, hi int) float64 { return gm.absRange(dst, b, x, g, lo, hi) })), true
+	}
 	c, ok := a.(*CSR)
 	if !ok {
 		return 0, false
@@ -142,7 +150,6 @@ func roundingFloor(a Operator, dst, b, x []float64) (float64, bool) {
 	for i := range c.N {
 		k = max(k, c.RowPtr[i+1]-c.RowPtr[i])
 	}
-	const eps = 0x1p-53
 	g := float64(k+1) * eps
 	sq := sumBlocks(c.N, func(lo, hi int) float64 {
 		var sq float64
@@ -161,8 +168,11 @@ func roundingFloor(a Operator, dst, b, x []float64) (float64, bool) {
 
 // mulVecDot computes dst = A x and returns y·dst.
 func mulVecDot(a Operator, dst, x, y []float64) float64 {
-	if c, ok := a.(*CSR); ok {
+	switch c := a.(type) {
+	case *CSR:
 		return sumBlocks(c.N, func(lo, hi int) float64 { return c.mulVecDotRange(dst, x, y, lo, hi) })
+	case *GridMatrix:
+		return sumBlocks(c.n, func(lo, hi int) float64 { return c.mulVecDotRange(dst, x, y, lo, hi) })
 	}
 	a.MulVecTo(dst, x)
 	return dot(y, dst)
@@ -170,8 +180,11 @@ func mulVecDot(a Operator, dst, x, y []float64) float64 {
 
 // mulVecDots2 computes dst = A x and returns y·dst and dst·dst.
 func mulVecDots2(a Operator, dst, x, y []float64) (float64, float64) {
-	if c, ok := a.(*CSR); ok {
+	switch c := a.(type) {
+	case *CSR:
 		return sumBlocks2(c.N, func(lo, hi int) (float64, float64) { return c.mulVecDots2Range(dst, x, y, lo, hi) })
+	case *GridMatrix:
+		return sumBlocks2(c.n, func(lo, hi int) (float64, float64) { return c.mulVecDots2Range(dst, x, y, lo, hi) })
 	}
 	a.MulVecTo(dst, x)
 	return sumBlocks2(len(dst), func(lo, hi int) (float64, float64) {

@@ -102,6 +102,19 @@ const mgMinParallel = 32768
 // mgBlockNodes is about the number of grid nodes in one block of work.
 const mgBlockNodes = 16384
 
+// firstUnknowns returns the unknown of each node of g: the first of those at the node, −1 for
+// none.
+func firstUnknowns(nodes []int32, g mesh.Grid) []int32 {
+	unknown := make([]int32, g.Len())
+	for k := range unknown {
+		unknown[k] = -1
+	}
+	for u := len(nodes) - 1; u >= 0; u-- {
+		unknown[nodes[u]] = int32(u)
+	}
+	return unknown
+}
+
 // NewMultigrid builds a V-cycle preconditioner for the square matrix a whose unknown u sits at
 // node nodes[u] (index j·NX + i) of grid g. nodes must be non-decreasing; several unknowns may
 // share a node (the pieces of a cell that a thin body splits), provided they do not couple to
@@ -114,11 +127,14 @@ const mgBlockNodes = 16384
 //
 // NewMultigrid returns an error if a's couplings or diagonal do not meet these conditions, a
 // coarse level ends with a non-positive diagonal entry, or the grid is narrower than 3 nodes
-// with more than Coarsest unknowns. It panics if len(nodes) is not a.Len(),
-// a node lies outside the grid, or an option is negative.
-func NewMultigrid(a *CSR, g mesh.Grid, nodes []int32, o MGOptions) (*Multigrid, error) {
-	if len(nodes) != a.N {
-		panic(fmt.Sprintf("solver: NewMultigrid: len(nodes) = %d, want a.Len() = %d", len(nodes), a.N))
+// with more than Coarsest unknowns. It panics if a is neither a *CSR nor a *GridMatrix on g,
+// len(nodes) is not a.Len(), a node lies outside the grid, or an option is negative.
+//
+// A *CSR is stored as a GridMatrix for the finest level (the same matrix, bit for bit, in less
+// memory); a *GridMatrix is used as it is and must have been made with the same nodes.
+func NewMultigrid(a Operator, g mesh.Grid, nodes []int32, o MGOptions) (*Multigrid, error) {
+	if len(nodes) != a.Len() {
+		panic(fmt.Sprintf("solver: NewMultigrid: len(nodes) = %d, want a.Len() = %d", len(nodes), a.Len()))
 	}
 	if o.Smooth < 0 || o.Coarsest < 0 {
 		panic(fmt.Sprintf("solver: NewMultigrid: MGOptions.Smooth and Coarsest must be >= 0, got %d and %d", o.Smooth, o.Coarsest))
@@ -134,8 +150,20 @@ func NewMultigrid(a *CSR, g mesh.Grid, nodes []int32, o MGOptions) (*Multigrid, 
 			panic(fmt.Sprintf("solver: NewMultigrid: nodes must be non-decreasing, got %d after %d at %d", k, nodes[u-1], u))
 		}
 	}
+	var gm *GridMatrix
+	switch m := a.(type) {
+	case *GridMatrix:
+		if m.grid != g {
+			panic("solver: NewMultigrid: the GridMatrix is on another grid")
+		}
+		gm = m
+	case *CSR:
+		gm = NewGridMatrix(m, g, nodes, firstUnknowns(nodes, g))
+	default:
+		panic(fmt.Sprintf("solver: NewMultigrid: a must be a *CSR or a *GridMatrix, got %T", a))
+	}
 	mg := &Multigrid{
-		n:           a.N,
+		n:           gm.n,
 		smooth:      o.Smooth,
 		symmetric:   o.Symmetric,
 		team:        newTeam(),
@@ -150,21 +178,21 @@ func NewMultigrid(a *CSR, g mesh.Grid, nodes []int32, o MGOptions) (*Multigrid, 
 	}
 	runtime.AddCleanup(mg, func(t *team) { t.stop() }, mg.team)
 
-	if a.N == 0 {
+	if gm.n == 0 {
 		return mg, nil
 	}
-	if a.N > coarsest && (g.NX < 3 || g.NY < 3) {
+	if gm.n > coarsest && (g.NX < 3 || g.NY < 3) {
 		return nil, fmt.Errorf("solver: multigrid: a grid of %d × %d nodes is too narrow to coarsen (at least 3 × 3)", g.NX, g.NY)
 	}
-	if a.N <= coarsest {
-		d, err := denseFromCSR(a, o.Symmetric)
+	if gm.n <= coarsest {
+		d, err := denseFromCSR(gm.CSR(), o.Symmetric)
 		if err != nil {
 			return nil, err
 		}
 		mg.direct = d
 		return mg, nil
 	}
-	fine, err := newFineLevel(a, g, nodes)
+	fine, err := newFineLevel(gm, g, nodes)
 	if err != nil {
 		return nil, err
 	}

@@ -18,14 +18,13 @@ const (
 	finePost            // fused, after it: prolong, smooth colour c, smooth the other colour
 )
 
-// fineLevel is the finest level of a Multigrid: the caller's CSR rows on the caller's unknowns.
+// fineLevel is the finest level of a Multigrid: the caller's matrix on the caller's unknowns.
 type fineLevel struct {
-	a        *CSR
+	a        *GridMatrix
 	nx, ny   int
 	nodes    []int32
 	rowStart []int32 // the unknowns of grid row j are rowStart[j] ≤ u < rowStart[j+1]
-	// meta holds each unknown's smoothing colour (bits 0–1) and the position of the diagonal
-	// entry within its row (bits 2–7).
+	// meta holds each unknown's smoothing colour.
 	meta    []uint8
 	ncolour int // 2 (red–black) or 4
 	// r is the residual on the grid, padded by one node left and below and two right and above
@@ -55,12 +54,12 @@ func gridStep(delta, nx int) (di, dj int, ok bool) {
 }
 
 // newFineLevel checks a's couplings against the grid and prepares the finest level.
-func newFineLevel(a *CSR, g mesh.Grid, nodes []int32) (*fineLevel, error) {
+func newFineLevel(a *GridMatrix, g mesh.Grid, nodes []int32) (*fineLevel, error) {
 	nx, ny := g.NX, g.NY
 	f := &fineLevel{
 		a: a, nx: nx, ny: ny, nodes: nodes,
 		rowStart: make([]int32, ny+1),
-		meta:     make([]uint8, a.N),
+		meta:     make([]uint8, a.n),
 		stride:   nx + 3,
 	}
 	for _, k := range nodes {
@@ -69,36 +68,31 @@ func newFineLevel(a *CSR, g mesh.Grid, nodes []int32) (*fineLevel, error) {
 	for j := range ny {
 		f.rowStart[j+1] += f.rowStart[j]
 	}
+	// Plain rows couple only to their four neighbours with a positive diagonal; the others are
+	// checked entry by entry.
 	nine := false
-	for j := range ny {
-		for u := int(f.rowStart[j]); u < int(f.rowStart[j+1]); u++ {
-			i := int(nodes[u]) - j*nx
-			var diag float64
-			for k := a.RowPtr[u]; k < a.RowPtr[u+1]; k++ {
-				v, val := int(a.Col[k]), a.Val[k]
-				if v == u {
-					if k-a.RowPtr[u] > 63 {
-						return nil, fmt.Errorf("solver: multigrid: row %d has %d entries before its diagonal, want at most 63", u, k-a.RowPtr[u])
-					}
-					diag = val
-					f.meta[u] = uint8(k-a.RowPtr[u]) << 2
-					continue
-				}
-				di, dj, ok := gridStep(int(nodes[v])-int(nodes[u]), nx)
-				if !ok || i+di < 0 || i+di >= nx {
-					return nil, fmt.Errorf("solver: multigrid: row %d at node (%d, %d) couples to node (%d, %d), more than one grid step away",
-						u, i, j, int(nodes[v])%nx, int(nodes[v])/nx)
-				}
-				if di == 0 && dj == 0 && val != 0 {
-					return nil, fmt.Errorf("solver: multigrid: rows %d and %d share node (%d, %d) and must not couple", u, v, i, j)
-				}
-				if di != 0 && dj != 0 && val != 0 {
-					nine = true
-				}
+	for u, r := range a.irr {
+		if r < 0 {
+			continue
+		}
+		k := int(nodes[u])
+		i, j := k%nx, k/nx
+		cols, vals := a.Row(u, nil, nil)
+		for q, v := range cols {
+			di, dj, ok := gridStep(int(nodes[v])-k, nx)
+			if !ok || i+di < 0 || i+di >= nx {
+				return nil, fmt.Errorf("solver: multigrid: row %d at node (%d, %d) couples to node (%d, %d), more than one grid step away",
+					u, i, j, int(nodes[v])%nx, int(nodes[v])/nx)
 			}
-			if !(diag > 0) || !isFinite(diag) {
-				return nil, fmt.Errorf("solver: multigrid: diagonal entry of row %d at node (%d, %d) must be positive, got %g", u, i, j, diag)
+			if int(v) != u && di == 0 && dj == 0 && vals[q] != 0 {
+				return nil, fmt.Errorf("solver: multigrid: rows %d and %d share node (%d, %d) and must not couple", u, v, i, j)
 			}
+			if di != 0 && dj != 0 && vals[q] != 0 {
+				nine = true
+			}
+		}
+		if d := a.restDiag[r]; !(d > 0) || !isFinite(d) {
+			return nil, fmt.Errorf("solver: multigrid: diagonal entry of row %d at node (%d, %d) must be positive, got %g", u, i, j, d)
 		}
 	}
 	f.ncolour = 2
@@ -109,9 +103,9 @@ func newFineLevel(a *CSR, g mesh.Grid, nodes []int32) (*fineLevel, error) {
 		for u := int(f.rowStart[j]); u < int(f.rowStart[j+1]); u++ {
 			i := int(nodes[u]) - j*nx
 			if nine {
-				f.meta[u] |= uint8(i&1 | (j&1)<<1)
+				f.meta[u] = uint8(i&1 | (j&1)<<1)
 			} else {
-				f.meta[u] |= uint8((i + j) & 1)
+				f.meta[u] = uint8((i + j) & 1)
 			}
 		}
 	}
@@ -179,7 +173,7 @@ func (f *fineLevel) chunkStart(b int) int {
 	if b >= f.nchunk {
 		return f.ny
 	}
-	target := int32(int64(b) * int64(f.a.N) / int64(f.nchunk))
+	target := int32(int64(b) * int64(f.a.n) / int64(f.nchunk))
 	j, _ := slices.BinarySearch(f.rowStart[:f.ny], target)
 	return j
 }
@@ -240,43 +234,45 @@ func (f *fineLevel) initRange(lo, hi, c int) {
 	x := f.x[lo:hi]
 	b := f.b[lo:hi]
 	meta := f.meta[lo:hi]
-	rp := a.RowPtr[lo:hi]
-	b, meta, rp = b[:len(x)], meta[:len(x)], rp[:len(x)]
+	irr := a.irr[lo:hi]
+	b, meta, irr = b[:len(x)], meta[:len(x)], irr[:len(x)]
 	for q := range x {
-		if m := meta[q]; int(m&3) == c {
-			x[q] = b[q] / a.Val[rp[q]+int(m>>2)]
-		} else {
+		switch {
+		case int(meta[q]) != c:
 			x[q] = 0
+		case irr[q] < 0:
+			x[q] = b[q] / 4
+		default:
+			x[q] = b[q] / a.restDiag[irr[q]]
 		}
 	}
 }
 
 // smoothRange updates the unknowns of colour c in [lo, hi) by x_u += (b_u − Σ_v A_uv x_v)/A_uu.
-// No two unknowns of one colour couple, so the order of the updates does not matter.
+// No two unknowns of one colour couple, so the order of the updates does not matter. The plain
+// rows' product is GridMatrix.productTo's, written out here for speed.
 func (f *fineLevel) smoothRange(lo, hi, c int) {
 	a := f.a
-	xAll := f.x
-	ends := a.RowPtr[lo+1 : hi+1]
+	nx := f.nx
+	xAll, unknown := f.x, a.unknown
 	x := f.x[lo:hi]
 	b := f.b[lo:hi]
 	meta := f.meta[lo:hi]
-	x, b, meta = x[:len(ends)], b[:len(ends)], meta[:len(ends)]
-	start := a.RowPtr[lo]
-	for q, end := range ends {
-		m := meta[q]
-		if int(m&3) != c {
-			start = end
+	irr := a.irr[lo:hi]
+	nodes := f.nodes[lo:hi]
+	b, meta, irr, nodes = b[:len(x)], meta[:len(x)], irr[:len(x)], nodes[:len(x)]
+	for q, m := range meta {
+		if int(m) != c {
 			continue
 		}
-		cols := a.Col[start:end]
-		vals := a.Val[start:end]
-		vals = vals[:len(cols)]
-		start = end
-		var s float64
-		for k, v := range cols {
-			s += vals[k] * xAll[v]
+		if r := irr[q]; r >= 0 {
+			x[q] += (b[q] - a.restDot(int(r), xAll)) / a.restDiag[r]
+			continue
 		}
-		x[q] += (b[q] - s) / vals[m>>2]
+		u := lo + q
+		k := int(nodes[q])
+		s := 0 - xAll[unknown[k-nx]] - xAll[u-1] + 4*xAll[u] - xAll[u+1] - xAll[unknown[k+nx]]
+		x[q] += (b[q] - s) / 4
 	}
 }
 
@@ -287,39 +283,41 @@ func (f *fineLevel) smoothRange(lo, hi, c int) {
 func (f *fineLevel) residualRow(j, skip int) {
 	a := f.a
 	lo, hi := int(f.rowStart[j]), int(f.rowStart[j+1])
-	ends := a.RowPtr[lo+1 : hi+1]
+	if lo == hi {
+		return
+	}
+	var buf [blockRows]float64
 	nodes := f.nodes[lo:hi]
 	b := f.b[lo:hi]
 	meta := f.meta[lo:hi]
-	nodes, b, meta = nodes[:len(ends)], b[:len(ends)], meta[:len(ends)]
-	x, r := f.x, f.r
+	b, meta = b[:len(nodes)], meta[:len(nodes)]
+	r := f.r
 	off := (j+1)*f.stride + 1 - j*f.nx // padded index of node k is k + off
-	start := a.RowPtr[lo]
-	prev := int32(-1)
-	for q, end := range ends {
-		k := int(nodes[q]) + off
-		if int(meta[q]&3) == skip {
-			if nodes[q] != prev {
-				r[k] = 0
+	for start := 0; start < len(nodes); start += blockRows {
+		end := min(start+blockRows, len(nodes))
+		ax := buf[:end-start]
+		a.productTo(ax, f.x, lo+start, lo+end)
+		prev := int32(-1)
+		if start > 0 {
+			prev = nodes[start-1]
+		}
+		for q := start; q < end; q++ {
+			k := int(nodes[q]) + off
+			if int(meta[q]) == skip {
+				if nodes[q] != prev {
+					r[k] = 0
+				}
+				prev = nodes[q]
+				continue
+			}
+			v := b[q] - ax[q-start]
+			if nodes[q] == prev {
+				r[k] += v
+			} else {
+				r[k] = v
 			}
 			prev = nodes[q]
-			start = end
-			continue
 		}
-		cols := a.Col[start:end]
-		vals := a.Val[start:end]
-		vals = vals[:len(cols)]
-		start = end
-		var s float64
-		for m, v := range cols {
-			s += vals[m] * x[v]
-		}
-		if nodes[q] == prev {
-			r[k] += b[q] - s
-		} else {
-			r[k] = b[q] - s
-		}
-		prev = nodes[q]
 	}
 }
 
@@ -356,12 +354,14 @@ func (f *fineLevel) coarsen(mg *Multigrid) (*gridLevel, error) {
 	task.entries = func(j int, visit func(i int, ent []stepEntry)) {
 		a := f.a
 		var buf [9]stepEntry
+		var cbuf [5]int32
+		var vbuf [5]float64
 		for u := int(f.rowStart[j]); u < int(f.rowStart[j+1]); u++ {
 			ent := buf[:0]
-			for k := a.RowPtr[u]; k < a.RowPtr[u+1]; k++ {
-				v := int(a.Col[k])
+			cols, vals := a.Row(u, cbuf[:], vbuf[:])
+			for q, v := range cols {
 				di, dj, _ := gridStep(int(f.nodes[v])-int(f.nodes[u]), f.nx) // checked by newFineLevel
-				ent = append(ent, stepEntry{int8(di), int8(dj), a.Val[k]})
+				ent = append(ent, stepEntry{int8(di), int8(dj), vals[q]})
 			}
 			visit(int(f.nodes[u])-j*f.nx, ent)
 		}

@@ -387,7 +387,7 @@ func AssemblePhi(m *mesh.Mesh, s *bc.Set, circulation []float64, opt *PhiOptions
 				}
 				if sd.nb < 0 {
 					// Inlet: outward flux −U·ℓ on the right-hand side.
-					f := s.Speed * (p.B - p.A)
+					f := s.Speed * g.H * faces.Fraction(sd.face, p)
 					if o.Outer == nil {
 						sys.B[row] -= f
 						inflow[row] += f
@@ -397,7 +397,7 @@ func AssemblePhi(m *mesh.Mesh, s *bc.Set, circulation []float64, opt *PhiOptions
 				if other == mesh.NoPiece {
 					return nil, fmt.Errorf("solver: node (%d, %d): an open face part has no cell piece beyond it", i, j)
 				}
-				alpha := (p.B - p.A) / g.H
+				alpha := faces.Fraction(sd.face, p)
 				// Across a cut the neighbour's value is moved to this row's branch: φ_nb − Δ, with
 				// Δ the rise of φ from this side of the face to the other.
 				delta := sys.FaceJump(sd.face, 0.5*(p.A+p.B))

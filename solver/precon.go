@@ -28,10 +28,16 @@ type Jacobi struct {
 	inv []float64 // 1/A_ii
 }
 
+// Diagonaler is a matrix that can write its diagonal: *CSR and *GridMatrix.
+type Diagonaler interface {
+	Len() int
+	DiagonalTo(dst []float64)
+}
+
 // NewJacobi returns the Jacobi preconditioner of a. It panics if a diagonal entry is zero or
 // missing.
-func NewJacobi(a *CSR) *Jacobi {
-	inv := make([]float64, a.N)
+func NewJacobi(a Diagonaler) *Jacobi {
+	inv := make([]float64, a.Len())
 	a.DiagonalTo(inv)
 	for i, d := range inv {
 		if d == 0 || math.IsNaN(d) || math.IsInf(d, 0) {

@@ -1,0 +1,81 @@
+package solver
+
+import (
+	"math/rand/v2"
+	"slices"
+	"testing"
+
+	"phipsi/mesh"
+)
+
+// TestGridMatrixExact checks that a GridMatrix is the matrix it was made from: the same rows
+// back (CSR), the same products and residuals bit for bit, on the ψ and φ systems of the test
+// passages (bodies, a step, a foil's sharp edge) and on a grid whose slit gives nodes two
+// unknowns; and that nearly every row of the passages is stored as plain.
+func TestGridMatrixExact(t *testing.T) {
+	type problem struct {
+		name      string
+		a         *CSR
+		g         mesh.Grid
+		nodes     []int32
+		minPlain  float64 // least share of plain rows
+		wantIrreg bool    // some rows must not be plain
+	}
+	var problems []problem
+	for _, p := range mgPassages {
+		psi := p.psi(t, 20000)
+		problems = append(problems, problem{p.name + "/psi", psi.A, psi.Mesh.Grid, psi.Nodes, 0.9, true})
+		phi, err := AssemblePhi(psi.Mesh, psi.BC, nil, nil)
+		if err != nil {
+			t.Fatal(err)
+		}
+		problems = append(problems, problem{p.name + "/phi", phi.A, phi.Mesh.Grid, phi.Nodes, 0.9, true})
+	}
+	a, g, nodes := mgSlit(40, 30)
+	problems = append(problems, problem{"slit", a, g, nodes, 0.5, true})
+
+	rng := rand.New(rand.NewPCG(1, 2))
+	for _, p := range problems {
+		t.Run(p.name, func(t *testing.T) {
+			gm := NewGridMatrix(p.a, p.g, p.nodes, firstUnknowns(p.nodes, p.g))
+			back := gm.CSR()
+			if !slices.Equal(back.RowPtr, p.a.RowPtr) || !slices.Equal(back.Col, p.a.Col) || !slices.Equal(back.Val, p.a.Val) {
+				t.Fatal("CSR() differs from the matrix the GridMatrix was made from")
+			}
+			share := float64(gm.Plain()) / float64(gm.Len())
+			if share < p.minPlain || (p.wantIrreg && gm.Plain() == gm.Len()) {
+				t.Errorf("plain rows: %d of %d (%.3f), want at least %.2f and not all", gm.Plain(), gm.Len(), share, p.minPlain)
+			}
+			n := p.a.N
+			x, b := make([]float64, n), make([]float64, n)
+			for i := range x {
+				x[i], b[i] = rng.NormFloat64(), rng.NormFloat64()
+			}
+			want, got := make([]float64, n), make([]float64, n)
+			p.a.MulVecTo(want, x)
+			gm.MulVecTo(got, x)
+			if !slices.Equal(got, want) {
+				t.Error("MulVecTo differs from the CSR's")
+			}
+			rw := residualTo(p.a, want, b, x)
+			rg := residualTo(gm, got, b, x)
+			if rw != rg || !slices.Equal(got, want) {
+				t.Error("residual differs from the CSR's")
+			}
+			d1, d2 := mulVecDots2(p.a, want, x, b)
+			e1, e2 := mulVecDots2(gm, got, x, b)
+			if d1 != e1 || d2 != e2 || mulVecDot(p.a, want, x, b) != mulVecDot(gm, got, x, b) {
+				t.Error("fused products differ from the CSR's")
+			}
+			f1, _ := roundingFloor(p.a, want, b, x)
+			f2, _ := roundingFloor(gm, got, b, x)
+			if f1 != f2 {
+				t.Errorf("rounding floor %g, CSR's %g", f2, f1)
+			}
+			t.Logf("plain rows %.4f, %d bytes (%.1f a row)", share, gm.Bytes(), float64(gm.Bytes())/float64(n))
+			if p.minPlain >= 0.9 && gm.Bytes() > 12*n {
+				t.Errorf("holds %d bytes for %d rows, want at most 12 a row", gm.Bytes(), n)
+			}
+		})
+	}
+}
