@@ -282,17 +282,7 @@ func (b *Builder) EndRow() {
 		panic(fmt.Sprintf("solver: Builder.EndRow: all %d rows already ended", b.n))
 	}
 	start := b.rowPtr[len(b.rowPtr)-1]
-	cols, vals := b.col[start:], b.val[start:]
-	sortRow(cols, vals)
-	w := 0
-	for k, c := range cols {
-		if w > 0 && cols[w-1] == c {
-			vals[w-1] += vals[k]
-			continue
-		}
-		cols[w], vals[w] = c, vals[k]
-		w++
-	}
+	w := mergeRow(b.col[start:], b.val[start:])
 	b.col = b.col[:start+w]
 	b.val = b.val[:start+w]
 	b.rowPtr = append(b.rowPtr, start+w)
@@ -311,6 +301,22 @@ func (b *Builder) CSR() *CSR {
 	a := &CSR{N: b.n, RowPtr: b.rowPtr, Col: b.col, Val: b.val}
 	b.rowPtr, b.col, b.val = nil, nil, nil
 	return a
+}
+
+// mergeRow sorts one row's entries by column, sums the entries of each column in the order they
+// were added, and returns how many distinct columns remain at the front of cols and vals.
+func mergeRow(cols []int32, vals []float64) int {
+	sortRow(cols, vals)
+	w := 0
+	for k, c := range cols {
+		if w > 0 && cols[w-1] == c {
+			vals[w-1] += vals[k]
+			continue
+		}
+		cols[w], vals[w] = c, vals[k]
+		w++
+	}
+	return w
 }
 
 // sortRow sorts one row's entries by column, stably, so that duplicates are later summed in the

@@ -20,7 +20,7 @@ import (
 // map. A plain row's product is summed in the order of its columns, as a CSR row is, so both
 // forms of a matrix give the same results bit for bit.
 type GridMatrix struct {
-	n       int
+	N       int // rows (and columns)
 	grid    mesh.Grid
 	nodes   []int32 // the node of each unknown
 	unknown []int32 // the unknown of each node (the first, where a node has several), −1 for none
@@ -43,27 +43,93 @@ func NewGridMatrix(a *CSR, g mesh.Grid, nodes, unknown []int32) *GridMatrix {
 	if len(nodes) != a.N || len(unknown) != g.Len() {
 		panic(fmt.Sprintf("solver: NewGridMatrix: len(nodes) = %d and len(unknown) = %d, want %d and %d", len(nodes), len(unknown), a.N, g.Len()))
 	}
-	s := &GridMatrix{n: a.N, grid: g, nodes: nodes, unknown: unknown, irr: pages.Make[int32](a.N), restPtr: []int{0}}
+	s := &GridMatrix{N: a.N, grid: g, nodes: nodes, unknown: unknown, irr: pages.Make[int32](a.N), restPtr: []int{0}}
 	for u := range a.N {
 		lo, hi := a.RowPtr[u], a.RowPtr[u+1]
-		cols, vals := a.Col[lo:hi], a.Val[lo:hi]
-		if s.isPlain(u, cols, vals) {
-			s.irr[u] = -1
-			continue
-		}
-		s.irr[u] = int32(len(s.restPtr) - 1)
-		diag := 0.0
-		for q, c := range cols {
-			if int(c) == u {
-				diag = vals[q]
-			}
-		}
-		s.restCol = append(s.restCol, cols...)
-		s.restVal = append(s.restVal, vals...)
-		s.restPtr = append(s.restPtr, len(s.restCol))
-		s.restDiag = append(s.restDiag, diag)
+		s.setRow(u, a.Col[lo:hi], a.Val[lo:hi])
 	}
 	return s
+}
+
+// GridBuilder assembles a GridMatrix row by row, as Builder assembles a CSR: rows are finished
+// in increasing order with EndRow; within a row, entries may be added in any order and entries
+// in the same column are summed in the order they were added. It never holds a plain row's
+// entries beyond its EndRow.
+type GridBuilder struct {
+	m    *GridMatrix
+	row  int
+	col  []int32
+	val  []float64
+	done bool
+}
+
+// NewGridBuilder returns a GridBuilder for the matrix on the unknowns nodes of grid g, with
+// unknown the node-to-unknown map (see NewGridMatrix). It panics if the lengths do not fit.
+func NewGridBuilder(g mesh.Grid, nodes, unknown []int32) *GridBuilder {
+	if len(unknown) != g.Len() {
+		panic(fmt.Sprintf("solver: NewGridBuilder: len(unknown) = %d, want %d", len(unknown), g.Len()))
+	}
+	n := len(nodes)
+	return &GridBuilder{m: &GridMatrix{N: n, grid: g, nodes: nodes, unknown: unknown, irr: pages.Make[int32](n), restPtr: []int{0}}}
+}
+
+// Row returns the index of the row that Add currently adds to.
+func (b *GridBuilder) Row() int { return b.row }
+
+// Add adds v to the entry in column col of the current row.
+func (b *GridBuilder) Add(col int, v float64) {
+	if b.done || b.row >= b.m.N {
+		panic("solver: GridBuilder.Add: every row has been ended")
+	}
+	if col < 0 || col >= b.m.N {
+		panic(fmt.Sprintf("solver: GridBuilder.Add: row %d: column must be in [0, %d), got %d", b.row, b.m.N, col))
+	}
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		panic(fmt.Sprintf("solver: GridBuilder.Add: row %d, column %d: value must be finite, got %g", b.row, col, v))
+	}
+	b.col = append(b.col, int32(col))
+	b.val = append(b.val, v)
+}
+
+// EndRow finishes the current row.
+func (b *GridBuilder) EndRow() {
+	if b.done || b.row >= b.m.N {
+		panic("solver: GridBuilder.EndRow: every row has been ended")
+	}
+	w := mergeRow(b.col, b.val)
+	b.m.setRow(b.row, b.col[:w], b.val[:w])
+	b.col, b.val = b.col[:0], b.val[:0]
+	b.row++
+}
+
+// Matrix returns the assembled matrix. It panics unless every row has been ended; the builder
+// cannot be used afterwards.
+func (b *GridBuilder) Matrix() *GridMatrix {
+	if b.done || b.row != b.m.N {
+		panic(fmt.Sprintf("solver: GridBuilder.Matrix: %d of %d rows ended", b.row, b.m.N))
+	}
+	b.done = true
+	return b.m
+}
+
+// setRow stores row u (columns ascending): as plain when it is the plain stencil, else among
+// the other rows. Rows must be set in increasing order.
+func (s *GridMatrix) setRow(u int, cols []int32, vals []float64) {
+	if s.isPlain(u, cols, vals) {
+		s.irr[u] = -1
+		return
+	}
+	s.irr[u] = int32(len(s.restPtr) - 1)
+	diag := 0.0
+	for q, c := range cols {
+		if int(c) == u {
+			diag = vals[q]
+		}
+	}
+	s.restCol = append(s.restCol, cols...)
+	s.restVal = append(s.restVal, vals...)
+	s.restPtr = append(s.restPtr, len(s.restCol))
+	s.restDiag = append(s.restDiag, diag)
 }
 
 // isPlain reports whether row u, with entries cols and vals, is the plain stencil.
@@ -74,7 +140,7 @@ func (s *GridMatrix) isPlain(u int, cols []int32, vals []float64) bool {
 	nx := s.grid.NX
 	k := int(s.nodes[u])
 	i := k % nx
-	if i == 0 || i == nx-1 || k < nx || k+nx >= len(s.unknown) || u == 0 || u == s.n-1 {
+	if i == 0 || i == nx-1 || k < nx || k+nx >= len(s.unknown) || u == 0 || u == s.N-1 {
 		return false
 	}
 	if s.nodes[u-1] != int32(k-1) || s.nodes[u+1] != int32(k+1) {
@@ -97,7 +163,7 @@ func (s *GridMatrix) isPlain(u int, cols []int32, vals []float64) bool {
 }
 
 // Len returns the number of rows (and columns).
-func (s *GridMatrix) Len() int { return s.n }
+func (s *GridMatrix) Len() int { return s.N }
 
 // Grid returns the grid of the unknowns.
 func (s *GridMatrix) Grid() mesh.Grid { return s.grid }
@@ -106,7 +172,7 @@ func (s *GridMatrix) Grid() mesh.Grid { return s.grid }
 func (s *GridMatrix) NodeOf() []int32 { return s.nodes }
 
 // Plain returns the number of plain rows.
-func (s *GridMatrix) Plain() int { return s.n - (len(s.restPtr) - 1) }
+func (s *GridMatrix) Plain() int { return s.N - (len(s.restPtr) - 1) }
 
 // Bytes returns the memory the GridMatrix holds itself, without the node maps it shares.
 func (s *GridMatrix) Bytes() int {
@@ -139,10 +205,10 @@ func (s *GridMatrix) Diag(u int) float64 {
 
 // CSR returns the matrix in compressed sparse rows (for tests, direct solves and SOR).
 func (s *GridMatrix) CSR() *CSR {
-	b := NewBuilder(s.n, 5*s.n)
+	b := NewBuilder(s.N, 5*s.N)
 	var cbuf [5]int32
 	var vbuf [5]float64
-	for u := range s.n {
+	for u := range s.N {
 		cols, vals := s.Row(u, cbuf[:], vbuf[:])
 		for q, c := range cols {
 			b.Add(int(c), vals[q])
@@ -154,8 +220,8 @@ func (s *GridMatrix) CSR() *CSR {
 
 // DiagonalTo writes the diagonal of s into dst.
 func (s *GridMatrix) DiagonalTo(dst []float64) {
-	if len(dst) != s.n {
-		panic(fmt.Sprintf("solver: GridMatrix.DiagonalTo: len(dst) = %d, want %d", len(dst), s.n))
+	if len(dst) != s.N {
+		panic(fmt.Sprintf("solver: GridMatrix.DiagonalTo: len(dst) = %d, want %d", len(dst), s.N))
 	}
 	for u := range dst {
 		dst[u] = s.Diag(u)
@@ -164,13 +230,24 @@ func (s *GridMatrix) DiagonalTo(dst []float64) {
 
 // MulVecTo computes dst = A x. dst and x must have length s.Len() and must not be the same slice.
 func (s *GridMatrix) MulVecTo(dst, x []float64) {
-	if len(dst) != s.n || len(x) != s.n {
-		panic(fmt.Sprintf("solver: GridMatrix.MulVecTo: len(dst) = %d and len(x) = %d, want %d", len(dst), len(x), s.n))
+	if len(dst) != s.N || len(x) != s.N {
+		panic(fmt.Sprintf("solver: GridMatrix.MulVecTo: len(dst) = %d and len(x) = %d, want %d", len(dst), len(x), s.N))
 	}
-	if s.n > 0 && &dst[0] == &x[0] {
+	if s.N > 0 && &dst[0] == &x[0] {
 		panic("solver: GridMatrix.MulVecTo: dst and x must not be the same slice")
 	}
-	forBlocks(s.n, func(lo, hi int) { s.mulVecRange(dst, x, lo, hi) })
+	forBlocks(s.N, func(lo, hi int) { s.mulVecRange(dst, x, lo, hi) })
+}
+
+// ResidualTo computes dst = b − A x. dst may be the same slice as b but not as x.
+func (s *GridMatrix) ResidualTo(dst, b, x []float64) {
+	if len(dst) != s.N || len(x) != s.N || len(b) != s.N {
+		panic(fmt.Sprintf("solver: GridMatrix.ResidualTo: len(dst) = %d, len(b) = %d and len(x) = %d, want %d", len(dst), len(b), len(x), s.N))
+	}
+	if s.N > 0 && &dst[0] == &x[0] {
+		panic("solver: GridMatrix.ResidualTo: dst and x must not be the same slice")
+	}
+	forBlocks(s.N, func(lo, hi int) { s.residualRange(dst, b, x, lo, hi) })
 }
 
 // productTo writes (A x)_u into out[u − lo] for rows lo ≤ u < hi (len(out) = hi − lo ≤

@@ -24,12 +24,12 @@ func TestGridMatrixExact(t *testing.T) {
 	var problems []problem
 	for _, p := range mgPassages {
 		psi := p.psi(t, 20000)
-		problems = append(problems, problem{p.name + "/psi", psi.A, psi.Mesh.Grid, psi.Nodes, 0.9, true})
+		problems = append(problems, problem{p.name + "/psi", psi.A.CSR(), psi.Mesh.Grid, psi.Nodes, 0.9, true})
 		phi, err := AssemblePhi(psi.Mesh, psi.BC, nil, nil)
 		if err != nil {
 			t.Fatal(err)
 		}
-		problems = append(problems, problem{p.name + "/phi", phi.A, phi.Mesh.Grid, phi.Nodes, 0.9, true})
+		problems = append(problems, problem{p.name + "/phi", phi.A.CSR(), phi.Mesh.Grid, phi.Nodes, 0.9, true})
 	}
 	a, g, nodes := mgSlit(40, 30)
 	problems = append(problems, problem{"slit", a, g, nodes, 0.5, true})

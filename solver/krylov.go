@@ -114,7 +114,7 @@ func residualTo(a Operator, dst, b, x []float64) float64 {
 	case *CSR:
 		return math.Sqrt(sumBlocks(c.N, func(lo, hi int) float64 { return c.residualRange(dst, b, x, lo, hi) }))
 	case *GridMatrix:
-		return math.Sqrt(sumBlocks(c.n, func(lo, hi int) float64 { return c.residualRange(dst, b, x, lo, hi) }))
+		return math.Sqrt(sumBlocks(c.N, func(lo, hi int) float64 { return c.residualRange(dst, b, x, lo, hi) }))
 	}
 	a.MulVecTo(dst, x)
 	return math.Sqrt(sumBlocks(len(dst), func(lo, hi int) float64 {
@@ -140,7 +140,7 @@ func roundingFloor(a Operator, dst, b, x []float64) (float64, bool) {
 	const eps = 0x1p-53
 	if gm, ok := a.(*GridMatrix); ok {
 		g := float64(gm.maxRowLen()+1) * eps
-		return math.Sqrt(sumBlocks(gm.n, func(lo, hi int) float64 { return gm.absRange(dst, b, x, g, lo, hi) })), true
+		return math.Sqrt(sumBlocks(gm.N, func(lo, hi int) float64 { return gm.absRange(dst, b, x, g, lo, hi) })), true
 	}
 	c, ok := a.(*CSR)
 	if !ok {
@@ -172,7 +172,7 @@ func mulVecDot(a Operator, dst, x, y []float64) float64 {
 	case *CSR:
 		return sumBlocks(c.N, func(lo, hi int) float64 { return c.mulVecDotRange(dst, x, y, lo, hi) })
 	case *GridMatrix:
-		return sumBlocks(c.n, func(lo, hi int) float64 { return c.mulVecDotRange(dst, x, y, lo, hi) })
+		return sumBlocks(c.N, func(lo, hi int) float64 { return c.mulVecDotRange(dst, x, y, lo, hi) })
 	}
 	a.MulVecTo(dst, x)
 	return dot(y, dst)
@@ -184,7 +184,7 @@ func mulVecDots2(a Operator, dst, x, y []float64) (float64, float64) {
 	case *CSR:
 		return sumBlocks2(c.N, func(lo, hi int) (float64, float64) { return c.mulVecDots2Range(dst, x, y, lo, hi) })
 	case *GridMatrix:
-		return sumBlocks2(c.n, func(lo, hi int) (float64, float64) { return c.mulVecDots2Range(dst, x, y, lo, hi) })
+		return sumBlocks2(c.N, func(lo, hi int) (float64, float64) { return c.mulVecDots2Range(dst, x, y, lo, hi) })
 	}
 	a.MulVecTo(dst, x)
 	return sumBlocks2(len(dst), func(lo, hi int) (float64, float64) {

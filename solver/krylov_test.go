@@ -626,7 +626,7 @@ func TestWorkspaceSameBits(t *testing.T) {
 	cg := pair{CG, func(w *Workspace) solveFunc { return w.CG }}
 	bicg := pair{BiCGStab, func(w *Workspace) solveFunc { return w.BiCGStab }}
 	// Operators are made afresh for every solve: a poisoned one counts its calls.
-	same := func(a *CSR) func() Operator { return func() Operator { return a } }
+	same := func(a Operator) func() Operator { return func() Operator { return a } }
 	poisoned := func(a *CSR, k int) func() Operator { return func() Operator { return poisonAt(a, k) } }
 	tests := []struct {
 		name string
@@ -679,7 +679,10 @@ func TestWorkspaceSameBits(t *testing.T) {
 // at two sizes of each problem, and that the workspace keeps its memory.
 func TestWorkspaceAllocs(t *testing.T) {
 	type problem struct {
-		a *CSR
+		a interface {
+			Operator
+			Diagonaler
+		}
 		b []float64
 		m Preconditioner
 	}
@@ -719,7 +722,7 @@ func TestWorkspaceAllocs(t *testing.T) {
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
 			for _, p := range tt.problems {
-				n := p.a.N
+				n := p.a.Len()
 				x := make([]float64, n)
 				var w Workspace
 				w.ReserveBiCGStab(n)
@@ -767,10 +770,10 @@ func TestWorkspaceReserve(t *testing.T) {
 		p := poisson5(8, func(x, y float64) float64 { return x + y }, func(x, y float64) float64 { return 0 })
 		var w Workspace
 		w.ReserveCG(3)
-		if _, err := w.BiCGStab(context.Background(), p.a, p.b, make([]float64, p.a.N), NewJacobi(p.a), nil); err != nil {
+		if _, err := w.BiCGStab(context.Background(), p.a, p.b, make([]float64, p.a.Len()), NewJacobi(p.a), nil); err != nil {
 			t.Fatal(err)
 		}
-		if want := bicgstabVectors(true) * p.a.N; len(w.buf) != want {
+		if want := bicgstabVectors(true) * p.a.Len(); len(w.buf) != want {
 			t.Errorf("got %d values, want %d", len(w.buf), want)
 		}
 	})

@@ -163,7 +163,7 @@ func NewMultigrid(a Operator, g mesh.Grid, nodes []int32, o MGOptions) (*Multigr
 		panic(fmt.Sprintf("solver: NewMultigrid: a must be a *CSR or a *GridMatrix, got %T", a))
 	}
 	mg := &Multigrid{
-		n:           gm.n,
+		n:           gm.N,
 		smooth:      o.Smooth,
 		symmetric:   o.Symmetric,
 		team:        newTeam(),
@@ -178,13 +178,13 @@ func NewMultigrid(a Operator, g mesh.Grid, nodes []int32, o MGOptions) (*Multigr
 	}
 	runtime.AddCleanup(mg, func(t *team) { t.stop() }, mg.team)
 
-	if gm.n == 0 {
+	if gm.N == 0 {
 		return mg, nil
 	}
-	if gm.n > coarsest && (g.NX < 3 || g.NY < 3) {
+	if gm.N > coarsest && (g.NX < 3 || g.NY < 3) {
 		return nil, fmt.Errorf("solver: multigrid: a grid of %d × %d nodes is too narrow to coarsen (at least 3 × 3)", g.NX, g.NY)
 	}
-	if gm.n <= coarsest {
+	if gm.N <= coarsest {
 		d, err := denseFromCSR(gm.CSR(), o.Symmetric)
 		if err != nil {
 			return nil, err

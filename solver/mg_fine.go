@@ -59,7 +59,7 @@ func newFineLevel(a *GridMatrix, g mesh.Grid, nodes []int32) (*fineLevel, error)
 	f := &fineLevel{
 		a: a, nx: nx, ny: ny, nodes: nodes,
 		rowStart: make([]int32, ny+1),
-		meta:     make([]uint8, a.n),
+		meta:     make([]uint8, a.N),
 		stride:   nx + 3,
 	}
 	for _, k := range nodes {
@@ -173,7 +173,7 @@ func (f *fineLevel) chunkStart(b int) int {
 	if b >= f.nchunk {
 		return f.ny
 	}
-	target := int32(int64(b) * int64(f.a.n) / int64(f.nchunk))
+	target := int32(int64(b) * int64(f.a.N) / int64(f.nchunk))
 	j, _ := slices.BinarySearch(f.rowStart[:f.ny], target)
 	return j
 }

@@ -879,7 +879,7 @@ func TestMultigridFusedSameBits(t *testing.T) {
 		name      string
 		a         *CSR
 		symmetric bool
-	}{{"psi", sys.A, false}, {"spd", spd, true}} {
+	}{{"psi", sys.A.CSR(), false}, {"spd", spd, true}} {
 		mg, err := NewMultigrid(c.a, sys.Mesh.Grid, sys.Nodes, MGOptions{Symmetric: c.symmetric})
 		if err != nil {
 			t.Fatal(err)
@@ -954,7 +954,7 @@ func TestMultigridSmootherVariants(t *testing.T) {
 		colours   int
 		symmetric bool
 	}{
-		{"psi two sweeps", sys.A, sys.Mesh.Grid, sys.Nodes, MGOptions{Smooth: 2}, 2, false},
+		{"psi two sweeps", sys.A.CSR(), sys.Mesh.Grid, sys.Nodes, MGOptions{Smooth: 2}, 2, false},
 		{"nine-point", nine, g9, nodes9, MGOptions{Symmetric: true}, 4, true},
 		{"nine-point two sweeps", nine, g9, nodes9, MGOptions{Symmetric: true, Smooth: 2}, 4, true},
 	} {

@@ -379,13 +379,16 @@ func peerPipeline(ctx context.Context, spacing float64) (peerPipelineRun, error)
 }
 
 // Byte model. One solve must at least stream, from memory, every array each of its passes
-// touches, once per pass: at 1M unknowns every vector (8 MB) and the matrix (68 MB) are far
+// touches, once per pass: at 1M unknowns every vector (8 MB) and the matrix (12 MB) are far
 // larger than the caches, so nothing survives from one pass to the next. Values are counted
 // as STREAM counts them (each array read or written once per pass, no write-allocate traffic),
 // so that the model divided by the triad bandwidth is the time of the solve at full memory speed.
-// N is the number of unknowns, v = 8N the bytes of one vector, nnz the matrix entries.
+// N is the number of unknowns, v = 8N the bytes of one vector.
 //
-//	matrix pass        M = 8(N+1) + 12·nnz           row pointers (int), then int32 column and float64 value per entry
+//	matrix pass        M = 8N + 4·nodes + R          the GridMatrix's row flag and node index (int32
+//	                                                 each) per row, its node-to-unknown map (int32 per
+//	                                                 grid node, read once: the rows above and below
+//	                                                 stay in cache), and R the other rows' CSR arrays
 //	A·x, with dots     M + 3v                        x and one more vector read, the product written (x's
 //	                                                 neighbours come from cache: rows are visited in order)
 //	residual b − A x   M + 3v                        b and x read, r written
@@ -404,9 +407,9 @@ func peerPipeline(ctx context.Context, spacing float64) (peerPipelineRun, error)
 //
 // V-cycle (mg.go, mg_fine.go, mg_grid.go), for the fused red–black path with one sweep that
 // every five-point system takes. The finest level is two passes over its rows: before the
-// correction M + N(1 colour/diagonal byte + 4 node index + 8 b read + 8 x written + 8 residual
-// written); after it M + N(1 + 4 + 8 b read + 16 x read and written) + the first coarse level's x
-// read. A coarse level of P padded nodes (stencil of 9 float32, 36 B) costs, per V-cycle: the
+// correction M + N(1 colour byte + 8 b read + 8 x written + 8 residual written); after it
+// M + N(1 + 8 b read + 16 x read and written) + the first coarse level's x read (the node index
+// is in M). A coarse level of P padded nodes (stencil of 9 float32, 36 B) costs, per V-cycle: the
 // restriction 8·P_above + 8P (the residual of the level above read, b written); the smoothing
 // before the correction 60P (stencil, b, 1/diagonal read, x written); the residual 60P (stencil,
 // b, x read, r written); the interpolation 16P + 8·P_below (x read and written, the coarser x
@@ -421,8 +424,9 @@ type peerTraffic struct {
 const stencilBytes = 9 * 4
 
 // newPeerTraffic returns the byte model of solves with matrix a and preconditioner mg.
-func newPeerTraffic(a *CSR, mg *Multigrid) (peerTraffic, error) {
-	tr := peerTraffic{matrix: 8*float64(a.N+1) + 12*float64(a.NNZ()), vector: 8 * float64(a.N)}
+func newPeerTraffic(a *GridMatrix, mg *Multigrid) (peerTraffic, error) {
+	rest := 8*len(a.restPtr) + 12*len(a.restCol) + 8*len(a.restDiag)
+	tr := peerTraffic{matrix: 8*float64(a.N) + 4*float64(len(a.unknown)) + float64(rest), vector: 8 * float64(a.N)}
 	f := mg.fine
 	switch {
 	case mg.direct != nil || f == nil:
@@ -431,8 +435,8 @@ func newPeerTraffic(a *CSR, mg *Multigrid) (peerTraffic, error) {
 		return tr, fmt.Errorf("the model covers the fused red–black V-cycle with one sweep, got %d colours and %d sweeps", f.ncolour, mg.smooth)
 	}
 	n := float64(f.a.N)
-	vc := tr.matrix + n*(1+4+8+8+8) // before the correction
-	vc += tr.matrix + n*(1+4+8+16) + 8*float64(len(mg.levels[0].x))
+	vc := tr.matrix + n*(1+8+8+8) // before the correction
+	vc += tr.matrix + n*(1+8+16) + 8*float64(len(mg.levels[0].x))
 	above := float64(f.stride * (f.ny + 3)) // the padded residual grid of the finest level
 	for l, lv := range mg.levels {
 		p := float64(len(lv.x))
@@ -646,7 +650,7 @@ func TestPeerScipy(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		t.Logf("ψ system of the channel: %d × %d nodes, %d cells, %d unknowns, %d entries", m.Grid.NX, m.Grid.NY, m.Grid.Cells(), sys.A.N, sys.A.NNZ())
+		t.Logf("ψ system of the channel: %d × %d nodes, %d cells, %d unknowns, %d plain rows", m.Grid.NX, m.Grid.NY, m.Grid.Cells(), sys.A.N, sys.A.Plain())
 		if python == "" {
 			t.Skip("no SciPy")
 		}
@@ -660,7 +664,7 @@ func TestPeerScipy(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		xs, rec, err := peerScipySolve(ctx, python, dir, "psi", sys.A, sys.B0, runs)
+		xs, rec, err := peerScipySolve(ctx, python, dir, "psi", sys.A.CSR(), sys.B0, runs)
 		if err != nil {
 			t.Fatal(err)
 		}

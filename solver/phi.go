@@ -49,7 +49,7 @@ type PhiSystem struct {
 	BC    *bc.Set
 	Faces *mesh.Faces
 	Cuts  []Cut
-	A     *CSR
+	A     *GridMatrix
 	B     []float64
 	// X0 is the initial guess of the solve.
 	X0 []float64
@@ -348,7 +348,7 @@ func AssemblePhi(m *mesh.Mesh, s *bc.Set, circulation []float64, opt *PhiOptions
 	sys.B = pages.Make[float64](nu)
 	inflow := make([]float64, nu)
 	anchored := make([]bool, nu) // couples to a prescribed value
-	bld := NewBuilder(nu, 5*nu)
+	bld := NewGridBuilder(g, sys.Nodes, sys.Unknown)
 	var parts []mesh.FacePart
 	type side struct {
 		face, nb int
@@ -423,7 +423,7 @@ func AssemblePhi(m *mesh.Mesh, s *bc.Set, circulation []float64, opt *PhiOptions
 		bld.Add(row, diag)
 		bld.EndRow()
 	}
-	sys.A = bld.CSR()
+	sys.A = bld.Matrix()
 	if err := sys.isolate(anchored, inflow); err != nil {
 		return nil, err
 	}
@@ -441,7 +441,7 @@ func AssemblePhi(m *mesh.Mesh, s *bc.Set, circulation []float64, opt *PhiOptions
 // them identity rows (φ = 0); it fails if inflow reaches any of them.
 func (sys *PhiSystem) isolate(anchored []bool, inflow []float64) error {
 	a := sys.A
-	nu := a.N
+	nu := a.Len()
 	reached := make([]bool, nu)
 	queue := make([]int32, 0, nu)
 	for u, ok := range anchored {
@@ -450,11 +450,14 @@ func (sys *PhiSystem) isolate(anchored []bool, inflow []float64) error {
 			queue = append(queue, int32(u))
 		}
 	}
+	var cbuf [5]int32
+	var vbuf [5]float64
 	for len(queue) > 0 {
 		u := queue[len(queue)-1]
 		queue = queue[:len(queue)-1]
-		for q := a.RowPtr[u]; q < a.RowPtr[u+1]; q++ {
-			if v := a.Col[q]; !reached[v] && a.Val[q] != 0 {
+		cols, vals := a.Row(int(u), cbuf[:], vbuf[:])
+		for q, v := range cols {
+			if !reached[v] && vals[q] != 0 {
 				reached[v] = true
 				queue = append(queue, v)
 			}
@@ -476,19 +479,20 @@ func (sys *PhiSystem) isolate(anchored []bool, inflow []float64) error {
 	if lost == 0 {
 		return nil
 	}
-	bld := NewBuilder(nu, len(a.Val))
+	bld := NewGridBuilder(sys.Mesh.Grid, sys.Nodes, sys.Unknown)
 	for u := range nu {
 		if !reached[u] {
 			bld.Add(u, 1)
 			sys.B[u] = 0
 		} else {
-			for q := a.RowPtr[u]; q < a.RowPtr[u+1]; q++ {
-				bld.Add(int(a.Col[q]), a.Val[q])
+			cols, vals := a.Row(u, cbuf[:], vbuf[:])
+			for q, c := range cols {
+				bld.Add(int(c), vals[q])
 			}
 		}
 		bld.EndRow()
 	}
-	sys.A = bld.CSR()
+	sys.A = bld.Matrix()
 	return nil
 }
 
@@ -563,19 +567,20 @@ func SolvePhi(ctx context.Context, sys *PhiSystem, method string, set *Settings)
 	switch method {
 	case MethodKrylov:
 		jac := NewJacobi(sys.A)
-		ws.ReserveCG(sys.A.N)
+		ws.ReserveCG(sys.A.Len())
 		solve = func(x []float64) (Stats, error) { return ws.CG(ctx, sys.A, sys.B, x, jac, set) }
 	case MethodAuto, MethodMG, "":
 		mg, err := NewMultigrid(sys.A, sys.Mesh.Grid, sys.Nodes, MGOptions{Symmetric: true})
 		if err != nil {
 			return nil, fmt.Errorf("velocity potential: %w", err)
 		}
-		ws.ReserveCG(sys.A.N)
+		ws.ReserveCG(sys.A.Len())
 		solve = func(x []float64) (Stats, error) { return ws.CG(ctx, sys.A, sys.B, x, mg, set) }
 	case MethodSOR:
 		g := sys.Mesh.Grid
 		sor := &SOR{Omega: OptimalOmega(g.NX-1, g.NY-1), Red: sys.Red, Black: sys.Black}
-		solve = func(x []float64) (Stats, error) { return sor.Solve(ctx, sys.A, sys.B, x, set) }
+		a := sys.A.CSR() // SOR walks CSR rows
+		solve = func(x []float64) (Stats, error) { return sor.Solve(ctx, a, sys.B, x, set) }
 	default:
 		return nil, fmt.Errorf("%w %q (allowed: auto, mgcg, cg, sor)", ErrUnknownMethod, method)
 	}

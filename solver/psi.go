@@ -30,7 +30,7 @@ import (
 type PsiSystem struct {
 	Mesh *mesh.Mesh
 	BC   *bc.Set
-	A    *CSR
+	A    *GridMatrix
 	// Unknown maps a node to its unknown index, −1 for a node whose ψ is known.
 	Unknown []int32
 	// Nodes maps an unknown index back to its node.
@@ -117,7 +117,7 @@ func AssemblePsi(m *mesh.Mesh, s *bc.Set) (*PsiSystem, error) {
 	for b := range sys.BK {
 		sys.BK[b].N = n
 	}
-	bld := NewBuilder(n, 5*n)
+	bld := NewGridBuilder(g, sys.Nodes, sys.Unknown)
 	for row, node := range sys.Nodes {
 		k := int(node)
 		i, j := k%g.NX, k/g.NX
@@ -165,7 +165,7 @@ func AssemblePsi(m *mesh.Mesh, s *bc.Set) (*PsiSystem, error) {
 		}
 		bld.EndRow()
 	}
-	sys.A = bld.CSR()
+	sys.A = bld.Matrix()
 	return sys, nil
 }
 
@@ -363,14 +363,14 @@ func (sys *PsiSystem) solverFor(method string) (func(ctx context.Context, b, x [
 			return nil, fmt.Errorf("stream function: %w", err)
 		}
 		ws := new(Workspace)
-		ws.ReserveBiCGStab(sys.A.N)
+		ws.ReserveBiCGStab(sys.A.Len())
 		return func(ctx context.Context, b, x []float64, s *Settings) (Stats, error) {
 			return ws.BiCGStab(ctx, sys.A, b, x, mg, s)
 		}, nil
 	case MethodKrylov:
 		jac := NewJacobi(sys.A)
 		ws := new(Workspace)
-		ws.ReserveBiCGStab(sys.A.N)
+		ws.ReserveBiCGStab(sys.A.Len())
 		return func(ctx context.Context, b, x []float64, s *Settings) (Stats, error) {
 			return ws.BiCGStab(ctx, sys.A, b, x, jac, s)
 		}, nil
@@ -378,8 +378,9 @@ func (sys *PsiSystem) solverFor(method string) (func(ctx context.Context, b, x [
 		g := sys.Mesh.Grid
 		red, black := sys.redBlack()
 		sor := &SOR{Omega: OptimalOmega(g.NX-1, g.NY-1), Red: red, Black: black}
+		a := sys.A.CSR() // SOR walks CSR rows
 		return func(ctx context.Context, b, x []float64, s *Settings) (Stats, error) {
-			return sor.Solve(ctx, sys.A, b, x, s)
+			return sor.Solve(ctx, a, b, x, s)
 		}, nil
 	}
 	return nil, fmt.Errorf("%w %q (allowed: auto, mgcg, cg, sor)", ErrUnknownMethod, method)

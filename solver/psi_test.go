@@ -134,11 +134,12 @@ func TestIterativeEqualsDense(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	n := sys.A.Len()
+	a := sys.A.CSR()
+	n := a.Len()
 	dense := mat.NewDense(n, n, nil)
 	for i := range n {
-		for q := sys.A.RowPtr[i]; q < sys.A.RowPtr[i+1]; q++ {
-			dense.Set(i, int(sys.A.Col[q]), sys.A.Val[q])
+		for q := a.RowPtr[i]; q < a.RowPtr[i+1]; q++ {
+			dense.Set(i, int(a.Col[q]), a.Val[q])
 		}
 	}
 	var want mat.VecDense
