@@ -238,12 +238,7 @@ type Workspace struct {
 
 // cgVectors and bicgstabVectors return the number of work vectors of CG and BiCGStab, with or
 // without a preconditioner.
-func cgVectors(precon bool) int {
-	if precon {
-		return 4
-	}
-	return 3
-}
+func cgVectors(bool) int { return 3 }
 
 func bicgstabVectors(precon bool) int {
 	if precon {
@@ -253,7 +248,7 @@ func bicgstabVectors(precon bool) int {
 }
 
 // ReserveCG grows w, if it is smaller, to the work vectors of a preconditioned CG solve of n
-// unknowns (4n values), and maps the new memory in at once. The solves that follow then neither
+// unknowns (3n values), and maps the new memory in at once. The solves that follow then neither
 // allocate nor meet fresh pages, so the cost of the memory falls on the setup that calls Reserve,
 // not on the first solve. It panics if n is negative.
 func (w *Workspace) ReserveCG(n int) {
@@ -338,9 +333,12 @@ func (w *Workspace) CG(ctx context.Context, a Operator, b, x []float64, m Precon
 	r := w.vector(0, n) // residual b − A x
 	p := w.vector(1, n) // search direction
 	q := w.vector(2, n) // A p
-	z := r              // preconditioned residual M⁻¹ r; r itself when there is no preconditioner
+	// z is the preconditioned residual M⁻¹ r: r itself when there is no preconditioner, else q's
+	// storage, as q = A p is spent by the step r −= α q before z is formed and z by p = z + β p
+	// before the next q.
+	z := r
 	if m != nil {
-		z = w.vector(3, n)
+		z = q
 	}
 
 	// finish recomputes the true residual of x (into q, no longer needed) for a solve that ends

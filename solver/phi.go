@@ -51,8 +51,6 @@ type PhiSystem struct {
 	Cuts  []Cut
 	A     *GridMatrix
 	B     []float64
-	// X0 is the initial guess of the solve.
-	X0 []float64
 	// Unknown maps a node to the unknown of piece 0 of its dual cell (piece p is Unknown[k] + p),
 	// −1 for a node whose value is prescribed or whose cell holds no fluid.
 	Unknown []int32
@@ -67,6 +65,7 @@ type PhiSystem struct {
 	// Inflow is the flux through the inlet, U × the inlet's open length, m²/s (0 with Outer).
 	Inflow     float64
 	Red, Black []int32 // unknowns of nodes with i + j even and odd
+	outer      bool    // assembled under PhiOptions.Outer: the initial guess is zero
 }
 
 // PhiOptions changes how AssemblePhi builds the φ problem. The zero value (and nil) means the
@@ -430,10 +429,7 @@ func AssemblePhi(m *mesh.Mesh, s *bc.Set, circulation []float64, opt *PhiOptions
 	for _, f := range inflow {
 		sys.Inflow += f
 	}
-	sys.X0 = pages.Make[float64](nu)
-	if o.Outer == nil {
-		sys.initialGuess()
-	}
+	sys.outer = o.Outer != nil
 	return sys, nil
 }
 
@@ -496,11 +492,20 @@ func (sys *PhiSystem) isolate(anchored []bool, inflow []float64) error {
 	return nil
 }
 
-// initialGuess fills X0 with the one-dimensional estimate φ = −Q ∫ₓᴸ dx′/h(x′) (h the local
-// channel height; exact for a straight empty channel) plus, for each cut that reaches the outlet,
-// the point vortex (Γ/2π)θ about the cut's start with θ in (0, 2π) measured from the cut, which
-// has the cut's jump.
-func (sys *PhiSystem) initialGuess() {
+// InitialGuess writes the solve's first estimate of the unknowns into dst (of length the number
+// of unknowns): the one-dimensional estimate φ = −Q ∫ₓᴸ dx′/h(x′) (h the local channel height;
+// exact for a straight empty channel) plus, for each cut that reaches the outlet, the point
+// vortex (Γ/2π)θ about the cut's start with θ in (0, 2π) measured from the cut, which has the
+// cut's jump; zero under PhiOptions.Outer. It is computed when asked for rather than stored, so
+// that the system holds no vector the solution does not need.
+func (sys *PhiSystem) InitialGuess(dst []float64) {
+	if len(dst) != len(sys.Nodes) {
+		panic(fmt.Sprintf("solver: PhiSystem.InitialGuess: len(dst) = %d, want %d", len(dst), len(sys.Nodes)))
+	}
+	if sys.outer {
+		clear(dst)
+		return
+	}
 	m := sys.Mesh
 	g := m.Grid
 	geo := m.Geom
@@ -532,7 +537,7 @@ func (sys *PhiSystem) initialGuess() {
 			}
 			v += c.Circulation * th / (2 * math.Pi)
 		}
-		sys.X0[u] = v
+		dst[u] = v
 	}
 }
 
@@ -584,7 +589,8 @@ func SolvePhi(ctx context.Context, sys *PhiSystem, method string, set *Settings)
 	default:
 		return nil, fmt.Errorf("%w %q (allowed: auto, mgcg, cg, sor)", ErrUnknownMethod, method)
 	}
-	sol := &PhiSolution{Sys: sys, X: append([]float64(nil), sys.X0...), Setup: time.Since(start)}
+	sol := &PhiSolution{Sys: sys, X: pages.Make[float64](len(sys.Nodes)), Setup: time.Since(start)}
+	sys.InitialGuess(sol.X)
 	start = time.Now()
 	st, err := solve(sol.X)
 	sol.Stats = st
@@ -596,12 +602,12 @@ func SolvePhi(ctx context.Context, sys *PhiSystem, method string, set *Settings)
 	return sol, nil
 }
 
-// Release drops the matrix, the right-hand side, the initial guess and the colour lists, which
+// Release drops the matrix, the right-hand side and the colour lists, which
 // only the solves use, so that a run can reuse their memory for the next stage; the maps, faces,
 // cuts and prescribed values stay, which is all that reading a solution needs. SolvePhi refuses a
 // released system.
 func (sys *PhiSystem) Release() {
-	sys.A, sys.B, sys.X0, sys.Red, sys.Black = nil, nil, nil, nil, nil
+	sys.A, sys.B, sys.Red, sys.Black = nil, nil, nil, nil
 }
 
 // expand returns φ at every node from the unknowns x.
