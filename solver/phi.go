@@ -56,10 +56,9 @@ type PhiSystem struct {
 	Unknown []int32
 	// Nodes maps an unknown to its node.
 	Nodes []int32
-	// Dirichlet marks the nodes whose value is prescribed, and Known holds those values (0 at
-	// other nodes).
+	// Dirichlet marks the nodes whose value is prescribed (Known gives the values).
 	Dirichlet []bool
-	Known     []float64
+	known     map[int32]float64 // the non-zero prescribed values
 	// Isolated counts the unknowns cut off from every prescribed value (set to 0).
 	Isolated int
 	// Inflow is the flux through the inlet, U × the inlet's open length, m²/s (0 with Outer).
@@ -297,7 +296,7 @@ func AssemblePhi(m *mesh.Mesh, s *bc.Set, circulation []float64, opt *PhiOptions
 	g := m.Grid
 	n := g.Len()
 	sys := &PhiSystem{Mesh: m, BC: s, Faces: faces, Cuts: cuts, Unknown: pages.Make[int32](n),
-		Dirichlet: pages.Make[bool](n), Known: pages.Make[float64](n)}
+		Dirichlet: pages.Make[bool](n), known: map[int32]float64{}}
 
 	// Prescribed values: the outlet column, or the whole outer ring with Outer.
 	for j := range g.NY {
@@ -310,13 +309,16 @@ func AssemblePhi(m *mesh.Mesh, s *bc.Set, circulation []float64, opt *PhiOptions
 					if !isFinite(v) {
 						return nil, fmt.Errorf("solver: PhiOptions.Outer at (%g, %g) is not finite", g.X(i), g.Y(j))
 					}
-					sys.Dirichlet[k], sys.Known[k] = true, v
+					sys.Dirichlet[k] = true
+					if v != 0 {
+						sys.known[int32(k)] = v
+					}
 				}
 			case i == g.NX-1:
 				sys.Dirichlet[k] = true
 				for _, c := range cuts {
-					if c.ToOutlet && j <= c.Row {
-						sys.Known[k] += c.Circulation
+					if c.ToOutlet && j <= c.Row && c.Circulation != 0 {
+						sys.known[int32(k)] += c.Circulation
 					}
 				}
 			}
@@ -405,7 +407,7 @@ func AssemblePhi(m *mesh.Mesh, s *bc.Set, circulation []float64, opt *PhiOptions
 				}
 				diag += alpha
 				if sys.Dirichlet[sd.nb] {
-					sys.B[row] += alpha * (sys.Known[sd.nb] - delta)
+					sys.B[row] += alpha * (sys.Known(sd.nb) - delta)
 					anchored[row] = true
 					continue
 				}
@@ -602,6 +604,10 @@ func SolvePhi(ctx context.Context, sys *PhiSystem, method string, set *Settings)
 	return sol, nil
 }
 
+// Known returns the prescribed value of φ at node k: 0 where none is prescribed. The few
+// prescribed nodes keep their values in a map rather than a grid-sized array.
+func (sys *PhiSystem) Known(k int) float64 { return sys.known[int32(k)] }
+
 // Release drops the matrix, the right-hand side and the colour lists, which
 // only the solves use, so that a run can reuse their memory for the next stage; the maps, faces,
 // cuts and prescribed values stay, which is all that reading a solution needs. SolvePhi refuses a
@@ -620,7 +626,7 @@ func (sys *PhiSystem) expand(x []float64) []float64 {
 		case sys.Unknown[k] >= 0:
 			phi[k] = x[sys.Unknown[k]]
 		case sys.Dirichlet[k]:
-			phi[k] = sys.Known[k]
+			phi[k] = sys.Known(k)
 		}
 	}
 	return phi

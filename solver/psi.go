@@ -5,6 +5,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"runtime"
 	"time"
 
 	"gonum.org/v1/gonum/mat"
@@ -236,6 +237,10 @@ const (
 	MethodMG     = "mgcg" // multigrid-preconditioned Krylov
 )
 
+// collectBefore is the number of unknowns from which SolvePsi collects the solves' work memory
+// before it allocates the field: below it the memory does not matter.
+const collectBefore = 1 << 18
+
 // errReleased is returned for a solve of a system whose matrix has been released.
 var errReleased = errors.New("solver: the system has been released and cannot be solved again")
 
@@ -326,6 +331,14 @@ func SolvePsi(ctx context.Context, sys *PsiSystem, method string, set *Settings)
 		for q, v := range xk[b] {
 			x[q] += cb * v
 		}
+	}
+	if n >= collectBefore {
+		// The solves' work memory (Krylov vectors, multigrid levels, the body solutions) is
+		// garbage now; collecting it before the field is allocated lets the field reuse its
+		// pages, so that the peak is the solves' memory rather than the solves' plus the field's
+		// (4M cells: 27 MB lower).
+		solve, xk, bk = nil, nil, nil
+		runtime.GC()
 	}
 	sol.Psi = sys.expand(x, sol.BodyPsi)
 	sol.Circulation = make([]float64, len(m.Geom.Bodies))

@@ -151,7 +151,7 @@ func (p *phiNodes) extended(i, j, d int) (float64, bool) {
 	case piece < 0 || piece == mesh.NoPiece:
 		return 0, false
 	case sys.Dirichlet[q]:
-		return sys.Known[q] - p.rise(i, j, d, at), true
+		return sys.Known(q) - p.rise(i, j, d, at), true
 	case sys.Unknown[q] >= 0:
 		return p.sol.X[int(sys.Unknown[q])+piece] - p.rise(i, j, d, at), true
 	}
