@@ -581,6 +581,7 @@ func SolvePhi(ctx context.Context, sys *PhiSystem, method string, set *Settings)
 		if err != nil {
 			return nil, fmt.Errorf("velocity potential: %w", err)
 		}
+		collectLarge(sys.A.Len()) // the hierarchy's set-up arrays, before the work vectors
 		ws.ReserveCG(sys.A.Len())
 		solve = func(x []float64) (Stats, error) { return ws.CG(ctx, sys.A, sys.B, x, mg, set) }
 	case MethodSOR:

@@ -237,9 +237,20 @@ const (
 	MethodMG     = "mgcg" // multigrid-preconditioned Krylov
 )
 
-// collectBefore is the number of unknowns from which SolvePsi collects the solves' work memory
-// before it allocates the field: below it the memory does not matter.
-const collectBefore = 1 << 18
+// collectFrom is the number of unknowns from which the solves collect garbage between their
+// stages (collectLarge): below it the memory does not matter.
+const collectFrom = 1 << 18
+
+// collectLarge runs the garbage collector when a system has at least collectFrom unknowns. The
+// solves call it where a stage has just dropped large arrays (a multigrid hierarchy's float64
+// set-up stencils, the Krylov vectors) and the next is about to allocate as much, so that the next
+// reuses the pages instead of raising the peak: on these machines fresh pages cost more than the
+// arithmetic, and a collection of the solver's pointer-free arrays takes about a millisecond.
+func collectLarge(n int) {
+	if n >= collectFrom {
+		runtime.GC()
+	}
+}
 
 // errReleased is returned for a solve of a system whose matrix has been released.
 var errReleased = errors.New("solver: the system has been released and cannot be solved again")
@@ -332,14 +343,14 @@ func SolvePsi(ctx context.Context, sys *PsiSystem, method string, set *Settings)
 			x[q] += cb * v
 		}
 	}
-	if n >= collectBefore {
+	if n >= collectFrom {
 		// The solves' work memory (Krylov vectors, multigrid levels, the body solutions) is
 		// garbage now; collecting it before the field is allocated lets the field reuse its
 		// pages, so that the peak is the solves' memory rather than the solves' plus the field's
 		// (4M cells: 27 MB lower).
 		solve, xk, bk = nil, nil, nil
-		runtime.GC()
 	}
+	collectLarge(n)
 	sol.Psi = sys.expand(x, sol.BodyPsi)
 	sol.Circulation = make([]float64, len(m.Geom.Bodies))
 	for b := range sol.Circulation {
@@ -375,6 +386,7 @@ func (sys *PsiSystem) solverFor(method string) (func(ctx context.Context, b, x [
 		if err != nil {
 			return nil, fmt.Errorf("stream function: %w", err)
 		}
+		collectLarge(sys.A.Len()) // the hierarchy's set-up arrays, before the work vectors
 		ws := new(Workspace)
 		ws.ReserveBiCGStab(sys.A.Len())
 		return func(ctx context.Context, b, x []float64, s *Settings) (Stats, error) {
