@@ -3,8 +3,8 @@ package solver
 import (
 	"fmt"
 	"math"
+	"math/bits"
 
-	"phipsi/internal/pages"
 	"phipsi/mesh"
 )
 
@@ -13,7 +13,7 @@ import (
 // four neighbours all carry unknowns: 4 on the diagonal and −1 in the columns of the unknowns at
 // the nodes west, east, south and north. Away from walls and bodies nearly every row of the ψ
 // and φ systems is plain (all but about 1 % on the scenarios' grids), so a GridMatrix takes about
-// 4 bytes a row against the 68 of a CSR, and a product with it reads a fifth of the memory.
+// 0.2 bytes a row against the 68 of a CSR, and a product with it reads a fifth of the memory.
 //
 // Unknowns are numbered in node order (nodes non-decreasing), so the west and east unknowns of a
 // plain row u are u − 1 and u + 1; the south and north ones are looked up in the node-to-unknown
@@ -24,10 +24,11 @@ type GridMatrix struct {
 	grid    mesh.Grid
 	nodes   []int32 // the node of each unknown
 	unknown []int32 // the unknown of each node (the first, where a node has several), −1 for none
-	// irr is −1 for a plain row and otherwise the row's index among the other rows, whose
-	// entries are restCol/restVal[restPtr[r]:restPtr[r+1]] (columns ascending) and diagonal
-	// restDiag[r].
-	irr      []int32
+	// plain has bit u%64 of word u/64 set for a plain row. Another row is the r-th of the other
+	// rows, r = before[u/64] + the other rows before u in its word, with entries
+	// restCol/restVal[restPtr[r]:restPtr[r+1]] (columns ascending) and diagonal restDiag[r].
+	plain    []uint64
+	before   []int32
 	restPtr  []int
 	restCol  []int32
 	restVal  []float64
@@ -43,7 +44,7 @@ func NewGridMatrix(a *CSR, g mesh.Grid, nodes, unknown []int32) *GridMatrix {
 	if len(nodes) != a.N || len(unknown) != g.Len() {
 		panic(fmt.Sprintf("solver: NewGridMatrix: len(nodes) = %d and len(unknown) = %d, want %d and %d", len(nodes), len(unknown), a.N, g.Len()))
 	}
-	s := &GridMatrix{N: a.N, grid: g, nodes: nodes, unknown: unknown, irr: pages.Make[int32](a.N), restPtr: []int{0}}
+	s := newGridMatrix(g, nodes, unknown)
 	for u := range a.N {
 		lo, hi := a.RowPtr[u], a.RowPtr[u+1]
 		s.setRow(u, a.Col[lo:hi], a.Val[lo:hi])
@@ -69,8 +70,7 @@ func NewGridBuilder(g mesh.Grid, nodes, unknown []int32) *GridBuilder {
 	if len(unknown) != g.Len() {
 		panic(fmt.Sprintf("solver: NewGridBuilder: len(unknown) = %d, want %d", len(unknown), g.Len()))
 	}
-	n := len(nodes)
-	return &GridBuilder{m: &GridMatrix{N: n, grid: g, nodes: nodes, unknown: unknown, irr: pages.Make[int32](n), restPtr: []int{0}}}
+	return &GridBuilder{m: newGridMatrix(g, nodes, unknown)}
 }
 
 // Row returns the index of the row that Add currently adds to.
@@ -112,14 +112,33 @@ func (b *GridBuilder) Matrix() *GridMatrix {
 	return b.m
 }
 
+// newGridMatrix returns an empty GridMatrix (every row still to be set) on the unknowns nodes.
+func newGridMatrix(g mesh.Grid, nodes, unknown []int32) *GridMatrix {
+	words := (len(nodes) + 63) / 64
+	return &GridMatrix{N: len(nodes), grid: g, nodes: nodes, unknown: unknown,
+		plain: make([]uint64, words), before: make([]int32, words), restPtr: []int{0}}
+}
+
+// other returns the index of row u among the other rows, or −1 for a plain row.
+func (s *GridMatrix) other(u int) int {
+	w := s.plain[u>>6]
+	bit := uint64(1) << (u & 63)
+	if w&bit != 0 {
+		return -1
+	}
+	return int(s.before[u>>6]) + bits.OnesCount64(^w&(bit-1))
+}
+
 // setRow stores row u (columns ascending): as plain when it is the plain stencil, else among
 // the other rows. Rows must be set in increasing order.
 func (s *GridMatrix) setRow(u int, cols []int32, vals []float64) {
+	if u&63 == 0 {
+		s.before[u>>6] = int32(len(s.restPtr) - 1)
+	}
 	if s.isPlain(u, cols, vals) {
-		s.irr[u] = -1
+		s.plain[u>>6] |= 1 << (u & 63)
 		return
 	}
-	s.irr[u] = int32(len(s.restPtr) - 1)
 	diag := 0.0
 	for q, c := range cols {
 		if int(c) == u {
@@ -176,14 +195,14 @@ func (s *GridMatrix) Plain() int { return s.N - (len(s.restPtr) - 1) }
 
 // Bytes returns the memory the GridMatrix holds itself, without the node maps it shares.
 func (s *GridMatrix) Bytes() int {
-	return 4*len(s.irr) + 8*len(s.restPtr) + 12*len(s.restCol) + 8*len(s.restDiag)
+	return 12*len(s.plain) + 8*len(s.restPtr) + 12*len(s.restCol) + 8*len(s.restDiag)
 }
 
 // Row returns the columns and values of row u, ascending by column. A plain row is written into
 // cols and vals, which must hold 5 entries; another row's slices are the GridMatrix's own and must
 // not be changed.
 func (s *GridMatrix) Row(u int, cols []int32, vals []float64) ([]int32, []float64) {
-	if r := s.irr[u]; r >= 0 {
+	if r := s.other(u); r >= 0 {
 		lo, hi := s.restPtr[r], s.restPtr[r+1]
 		return s.restCol[lo:hi], s.restVal[lo:hi]
 	}
@@ -197,7 +216,7 @@ func (s *GridMatrix) Row(u int, cols []int32, vals []float64) ([]int32, []float6
 
 // Diag returns the diagonal entry of row u.
 func (s *GridMatrix) Diag(u int) float64 {
-	if r := s.irr[u]; r >= 0 {
+	if r := s.other(u); r >= 0 {
 		return s.restDiag[r]
 	}
 	return 4
@@ -256,16 +275,15 @@ func (s *GridMatrix) ResidualTo(dst, b, x []float64) {
 // exact). Every kernel forms its products here and then uses them while they are in cache.
 func (s *GridMatrix) productTo(out, x []float64, lo, hi int) {
 	nx := s.grid.NX
-	irr := s.irr[lo:hi]
 	nodes := s.nodes[lo:hi]
-	nodes, out = nodes[:len(irr)], out[:len(irr)]
+	out = out[:len(nodes)]
 	unknown := s.unknown
-	for q, r := range irr {
-		if r >= 0 {
-			out[q] = s.restDot(int(r), x)
+	for q := range out {
+		u := lo + q
+		if s.plain[u>>6]&(1<<(u&63)) == 0 {
+			out[q] = s.restDot(s.other(u), x)
 			continue
 		}
-		u := lo + q
 		k := int(nodes[q])
 		out[q] = 0 - x[unknown[k-nx]] - x[u-1] + 4*x[u] - x[u+1] - x[unknown[k+nx]]
 	}

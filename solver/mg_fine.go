@@ -71,7 +71,8 @@ func newFineLevel(a *GridMatrix, g mesh.Grid, nodes []int32) (*fineLevel, error)
 	// Plain rows couple only to their four neighbours with a positive diagonal; the others are
 	// checked entry by entry.
 	nine := false
-	for u, r := range a.irr {
+	for u := range a.N {
+		r := a.other(u)
 		if r < 0 {
 			continue
 		}
@@ -234,17 +235,13 @@ func (f *fineLevel) initRange(lo, hi, c int) {
 	x := f.x[lo:hi]
 	b := f.b[lo:hi]
 	meta := f.meta[lo:hi]
-	irr := a.irr[lo:hi]
-	b, meta, irr = b[:len(x)], meta[:len(x)], irr[:len(x)]
+	b, meta = b[:len(x)], meta[:len(x)]
 	for q := range x {
-		switch {
-		case int(meta[q]) != c:
+		if int(meta[q]) != c {
 			x[q] = 0
-		case irr[q] < 0:
-			x[q] = b[q] / 4
-		default:
-			x[q] = b[q] / a.restDiag[irr[q]]
+			continue
 		}
+		x[q] = b[q] / a.Diag(lo+q)
 	}
 }
 
@@ -258,18 +255,19 @@ func (f *fineLevel) smoothRange(lo, hi, c int) {
 	x := f.x[lo:hi]
 	b := f.b[lo:hi]
 	meta := f.meta[lo:hi]
-	irr := a.irr[lo:hi]
 	nodes := f.nodes[lo:hi]
-	b, meta, irr, nodes = b[:len(x)], meta[:len(x)], irr[:len(x)], nodes[:len(x)]
+	b, meta, nodes = b[:len(x)], meta[:len(x)], nodes[:len(x)]
+	plain := a.plain
 	for q, m := range meta {
 		if int(m) != c {
 			continue
 		}
-		if r := irr[q]; r >= 0 {
-			x[q] += (b[q] - a.restDot(int(r), xAll)) / a.restDiag[r]
+		u := lo + q
+		if plain[u>>6]&(1<<(u&63)) == 0 {
+			r := a.other(u)
+			x[q] += (b[q] - a.restDot(r, xAll)) / a.restDiag[r]
 			continue
 		}
-		u := lo + q
 		k := int(nodes[q])
 		s := 0 - xAll[unknown[k-nx]] - xAll[u-1] + 4*xAll[u] - xAll[u+1] - xAll[unknown[k+nx]]
 		x[q] += (b[q] - s) / 4

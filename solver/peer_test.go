@@ -385,8 +385,8 @@ func peerPipeline(ctx context.Context, spacing float64) (peerPipelineRun, error)
 // so that the model divided by the triad bandwidth is the time of the solve at full memory speed.
 // N is the number of unknowns, v = 8N the bytes of one vector.
 //
-//	matrix pass        M = 8N + 4·nodes + R          the GridMatrix's row flag and node index (int32
-//	                                                 each) per row, its node-to-unknown map (int32 per
+//	matrix pass        M = 4N + N/8 + 4·nodes + R    the GridMatrix's node index (int32) and plain
+//	                                                 bit per row, its node-to-unknown map (int32 per
 //	                                                 grid node, read once: the rows above and below
 //	                                                 stay in cache), and R the other rows' CSR arrays
 //	A·x, with dots     M + 3v                        x and one more vector read, the product written (x's
@@ -426,7 +426,7 @@ const stencilBytes = 9 * 4
 // newPeerTraffic returns the byte model of solves with matrix a and preconditioner mg.
 func newPeerTraffic(a *GridMatrix, mg *Multigrid) (peerTraffic, error) {
 	rest := 8*len(a.restPtr) + 12*len(a.restCol) + 8*len(a.restDiag)
-	tr := peerTraffic{matrix: 8*float64(a.N) + 4*float64(len(a.unknown)) + float64(rest), vector: 8 * float64(a.N)}
+	tr := peerTraffic{matrix: 4*float64(a.N) + 8*float64(len(a.plain)) + 4*float64(len(a.unknown)) + float64(rest), vector: 8 * float64(a.N)}
 	f := mg.fine
 	switch {
 	case mg.direct != nil || f == nil:
