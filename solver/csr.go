@@ -147,25 +147,6 @@ func (a *CSR) mulVecRange(dst, x []float64, lo, hi int) {
 	}
 }
 
-// mulVecDotRange computes dst = A x on rows [lo, hi) as mulVecRange does and returns
-// Σ_{lo≤i<hi} y_i dst_i, summed in row order, so that it equals mulVecRange followed by dotRange.
-func (a *CSR) mulVecDotRange(dst, x, y []float64, lo, hi int) float64 {
-	ends := a.RowPtr[lo+1 : hi+1]
-	dst = dst[lo:hi]
-	dst = dst[:len(ends)]
-	y = y[lo:hi]
-	y = y[:len(ends)]
-	start := a.RowPtr[lo]
-	var d float64
-	for i, end := range ends {
-		s := rowDot(a.Col[start:end], a.Val[start:end], x)
-		start = end
-		dst[i] = s
-		d += y[i] * s
-	}
-	return d
-}
-
 // mulVecDots2Range computes dst = A x on rows [lo, hi) and returns Σ y_i dst_i and Σ dst_i², both
 // summed in row order.
 func (a *CSR) mulVecDots2Range(dst, x, y []float64, lo, hi int) (float64, float64) {

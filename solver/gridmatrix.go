@@ -303,16 +303,6 @@ func (s *GridMatrix) mulVecRange(dst, x []float64, lo, hi int) {
 	s.productTo(dst[lo:hi], x, lo, hi)
 }
 
-// mulVecDotRange computes dst = A x on rows [lo, hi) and returns Σ y_u dst_u in row order.
-func (s *GridMatrix) mulVecDotRange(dst, x, y []float64, lo, hi int) float64 {
-	s.productTo(dst[lo:hi], x, lo, hi)
-	var d float64
-	for u := lo; u < hi; u++ {
-		d += y[u] * dst[u]
-	}
-	return d
-}
-
 // mulVecDots2Range computes dst = A x on rows [lo, hi) and returns Σ y_u dst_u and Σ dst_u².
 func (s *GridMatrix) mulVecDots2Range(dst, x, y []float64, lo, hi int) (float64, float64) {
 	s.productTo(dst[lo:hi], x, lo, hi)

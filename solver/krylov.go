@@ -166,59 +166,6 @@ func roundingFloor(a Operator, dst, b, x []float64) (float64, bool) {
 	return math.Sqrt(sq), true
 }
 
-// mulVecDot computes dst = A x and returns y·dst.
-func mulVecDot(a Operator, dst, x, y []float64) float64 {
-	switch c := a.(type) {
-	case *CSR:
-		return sumBlocks(c.N, func(lo, hi int) float64 { return c.mulVecDotRange(dst, x, y, lo, hi) })
-	case *GridMatrix:
-		return sumBlocks(c.N, func(lo, hi int) float64 { return c.mulVecDotRange(dst, x, y, lo, hi) })
-	}
-	a.MulVecTo(dst, x)
-	return dot(y, dst)
-}
-
-// mulVecDots2 computes dst = A x and returns y·dst and dst·dst.
-func mulVecDots2(a Operator, dst, x, y []float64) (float64, float64) {
-	switch c := a.(type) {
-	case *CSR:
-		return sumBlocks2(c.N, func(lo, hi int) (float64, float64) { return c.mulVecDots2Range(dst, x, y, lo, hi) })
-	case *GridMatrix:
-		return sumBlocks2(c.N, func(lo, hi int) (float64, float64) { return c.mulVecDots2Range(dst, x, y, lo, hi) })
-	}
-	a.MulVecTo(dst, x)
-	return sumBlocks2(len(dst), func(lo, hi int) (float64, float64) {
-		d := dst[lo:hi]
-		yy := y[lo:hi]
-		yy = yy[:len(d)]
-		var dy, dd float64
-		for i, v := range d {
-			dy += yy[i] * v
-			dd += v * v
-		}
-		return dy, dd
-	})
-}
-
-// stepAndNorm does x += α p and r −= α q in one pass and returns the new r·r.
-func stepAndNorm(x, r []float64, alpha float64, p, q []float64) float64 {
-	return sumBlocks(len(x), func(lo, hi int) float64 {
-		xs := x[lo:hi]
-		rs := r[lo:hi]
-		ps := p[lo:hi]
-		qs := q[lo:hi]
-		rs, ps, qs = rs[:len(xs)], ps[:len(xs)], qs[:len(xs)]
-		var sq float64
-		for i := range xs {
-			xs[i] += alpha * ps[i]
-			ri := rs[i] - alpha*qs[i]
-			rs[i] = ri
-			sq += ri * ri
-		}
-		return sq
-	})
-}
-
 // Workspace holds the work vectors of CG and BiCGStab, so that a sequence of solves allocates
 // them once: the 1 + K superposition solves of SolvePsi share one. The zero value is an empty
 // workspace; ReserveCG or ReserveBiCGStab sizes it beforehand, else the first solve does, and it
@@ -226,14 +173,15 @@ func stepAndNorm(x, r []float64, alpha float64, p, q []float64) float64 {
 // read, so a reused workspace gives the same results, bit for bit, as a fresh one (or as the
 // functions CG and BiCGStab, which use a workspace of their own).
 //
-// Memory: CG keeps 3 vectors of the operator's length (4 with a preconditioner), BiCGStab 6 (7
-// with a preconditioner): the residual, the search direction and the operator's product, BiCGStab
-// also the shadow residual, the second product and the best iterate, and with a preconditioner its
-// output. A solve with a workspace that is large enough allocates nothing of grid size.
+// Memory: CG keeps 3 vectors of the operator's length (the preconditioner's output shares the
+// operator product's), BiCGStab 6 (7 with a preconditioner): the residual, the search direction
+// and the operator's product, BiCGStab also the shadow residual, the second product and the best
+// iterate, and with a preconditioner its output. A solve with a workspace that is large enough allocates nothing of grid size.
 //
 // A Workspace serves one solve at a time; its vectors never alias the caller's b and x.
 type Workspace struct {
 	buf []float64
+	k   kernels // the parallel vector and matrix kernels (krylov_par.go)
 }
 
 // cgVectors and bicgstabVectors return the number of work vectors of CG and BiCGStab, with or
@@ -319,7 +267,7 @@ func (w *Workspace) CG(ctx context.Context, a Operator, b, x []float64, m Precon
 	checkVectors(method, n, b, x)
 	st := Stats{Method: method}
 
-	bnorm := norm(b)
+	bnorm := w.k.norm(b)
 	if bnorm == 0 {
 		clear(x)
 		st.Converged = true
@@ -344,12 +292,12 @@ func (w *Workspace) CG(ctx context.Context, a Operator, b, x []float64, m Precon
 	// finish recomputes the true residual of x (into q, no longer needed) for a solve that ends
 	// without converging.
 	finish := func(err error) (Stats, error) {
-		st.Residual = residualTo(a, q, b, x) / bnorm
+		st.Residual = w.k.residual(a, q, b, x) / bnorm
 		st.Converged = false
 		return st, err
 	}
 
-	rnorm := residualTo(a, r, b, x)
+	rnorm := w.k.residual(a, r, b, x)
 	if !isFinite(rnorm) {
 		return st, fmt.Errorf("%w: %s: initial residual is not finite (check x and the operator)", ErrBreakdown, method)
 	}
@@ -366,8 +314,8 @@ func (w *Workspace) CG(ctx context.Context, a Operator, b, x []float64, m Precon
 				return 0, fmt.Errorf("solver: %s: preconditioner: %w", method, err)
 			}
 		}
-		copy(p, z)
-		return dot(r, z), nil
+		w.k.copy(p, z)
+		return w.k.dot(r, z), nil
 	}
 	rho, err := start()
 	if err != nil {
@@ -383,7 +331,7 @@ func (w *Workspace) CG(ctx context.Context, a Operator, b, x []float64, m Precon
 			return finish(fmt.Errorf("solver: %s stopped after %d iterations: %w", method, st.Iterations, err))
 		}
 		// q = A p, α = ρ / (p·A p)
-		pq := mulVecDot(a, q, p, p)
+		pq, _ := w.k.mulVecDots2(a, q, p, p)
 		if !(pq > 0) || !isFinite(pq) {
 			return finish(fmt.Errorf("%w: %s: p·Ap = %g at iteration %d: the operator is not positive definite", ErrBreakdown, method, pq, it))
 		}
@@ -392,7 +340,7 @@ func (w *Workspace) CG(ctx context.Context, a Operator, b, x []float64, m Precon
 			return finish(fmt.Errorf("%w: %s: step length %g at iteration %d", ErrBreakdown, method, alpha, it))
 		}
 		// x += α p, r −= α q
-		rr := stepAndNorm(x, r, alpha, p, q)
+		rr := w.k.step(x, r, alpha, p, q)
 		st.Iterations = it
 		res := math.Sqrt(rr) / bnorm
 		if !isFinite(res) {
@@ -402,7 +350,7 @@ func (w *Workspace) CG(ctx context.Context, a Operator, b, x []float64, m Precon
 
 		if res <= cfg.Tolerance {
 			// Confirm with the true residual, which also replaces the drifted recursive one.
-			trueRes := residualTo(a, r, b, x) / bnorm
+			trueRes := w.k.residual(a, r, b, x) / bnorm
 			if trueRes <= cfg.Tolerance {
 				st.Residual = trueRes
 				st.Converged = true
@@ -441,21 +389,14 @@ func (w *Workspace) CG(ctx context.Context, a Operator, b, x []float64, m Precon
 			if err := m.PreconSolve(z, r); err != nil {
 				return finish(fmt.Errorf("solver: %s: preconditioner at iteration %d: %w", method, it, err))
 			}
-			rhoNew = dot(r, z)
+			rhoNew = w.k.dot(r, z)
 		}
 		if !(rhoNew > 0) || !isFinite(rhoNew) {
 			return finish(fmt.Errorf("%w: %s: r·M⁻¹r = %g at iteration %d: the preconditioner is not positive definite", ErrBreakdown, method, rhoNew, it))
 		}
 		beta := rhoNew / rho
 		rho = rhoNew
-		forBlocks(n, func(lo, hi int) {
-			ps := p[lo:hi]
-			zs := z[lo:hi]
-			zs = zs[:len(ps)]
-			for i := range ps {
-				ps[i] = zs[i] + beta*ps[i]
-			}
-		})
+		w.k.cgDirection(p, z, beta)
 	}
 	st, _ = finish(nil)
 	return st, fmt.Errorf("%w: %s: relative residual %.3g after %d iterations, want <= %.3g",
@@ -491,7 +432,7 @@ func (w *Workspace) BiCGStab(ctx context.Context, a Operator, b, x []float64, m 
 	checkVectors(method, n, b, x)
 	st := Stats{Method: method}
 
-	bnorm := norm(b)
+	bnorm := w.k.norm(b)
 	if bnorm == 0 {
 		clear(x)
 		st.Converged = true
@@ -513,7 +454,7 @@ func (w *Workspace) BiCGStab(ctx context.Context, a Operator, b, x []float64, m 
 		z = w.vector(6, n)
 	}
 
-	rnorm := residualTo(a, r, b, x)
+	rnorm := w.k.residual(a, r, b, x)
 	if !isFinite(rnorm) {
 		return st, fmt.Errorf("%w: %s: initial residual is not finite (check x and the operator)", ErrBreakdown, method)
 	}
@@ -522,15 +463,15 @@ func (w *Workspace) BiCGStab(ctx context.Context, a Operator, b, x []float64, m 
 		st.Converged = true
 		return st, nil
 	}
-	copy(xBest, x)
+	w.k.copy(xBest, x)
 	bestRes := rnorm / bnorm
 
 	// finish puts into x the better (by true residual) of x and xBest and records its residual.
 	finish := func(err error) (Stats, error) {
-		res := residualTo(a, t, b, x) / bnorm
+		res := w.k.residual(a, t, b, x) / bnorm
 		if bestRes < res || !isFinite(res) {
-			if bres := residualTo(a, t, b, xBest) / bnorm; bres < res || !isFinite(res) {
-				copy(x, xBest)
+			if bres := w.k.residual(a, t, b, xBest) / bnorm; bres < res || !isFinite(res) {
+				w.k.copy(x, xBest)
 				res = bres
 			}
 		}
@@ -559,37 +500,29 @@ func (w *Workspace) BiCGStab(ctx context.Context, a Operator, b, x []float64, m 
 
 		// ρ = r̂·r; p = r + β (p − ω v), β = (ρ/ρ_prev)(α/ω)
 		if !fresh {
-			rho = dot(rhat, r)
+			rho = w.k.dot(rhat, r)
 			if !isFinite(rho) {
 				return finish(fmt.Errorf("%w: %s: r̂·r = %g at iteration %d", ErrBreakdown, method, rho, it))
 			}
 			if math.Abs(rho) <= breakdownCos*rhatNorm*rnorm {
 				st.Restarts++
-				rnorm = residualTo(a, r, b, x)
+				rnorm = w.k.residual(a, r, b, x)
 				fresh = true
 			}
 		}
 		startedFresh := fresh
 		if fresh {
-			copy(rhat, r)
-			copy(p, r)
+			w.k.copy(rhat, r)
+			w.k.copy(p, r)
 			rhatNorm = rnorm
-			rho = dot(rhat, r)
+			rho = w.k.dot(rhat, r)
 			fresh = false
 		} else {
 			beta := (rho / rhoPrev) * (alpha / omega)
 			if !isFinite(beta) {
 				return finish(fmt.Errorf("%w: %s: β = %g at iteration %d", ErrBreakdown, method, beta, it))
 			}
-			forBlocks(n, func(lo, hi int) {
-				ps := p[lo:hi]
-				rs := r[lo:hi]
-				vs := v[lo:hi]
-				rs, vs = rs[:len(ps)], vs[:len(ps)]
-				for i := range ps {
-					ps[i] = rs[i] + beta*(ps[i]-omega*vs[i])
-				}
-			})
+			w.k.bicgDirection(p, r, v, beta, omega)
 		}
 
 		// p̂ = M⁻¹ p, v = A p̂, α = ρ / (r̂·v)
@@ -597,7 +530,7 @@ func (w *Workspace) BiCGStab(ctx context.Context, a Operator, b, x []float64, m 
 		if err != nil {
 			return finish(err)
 		}
-		rv, vv := mulVecDots2(a, v, phat, rhat)
+		rv, vv := w.k.mulVecDots2(a, v, phat, rhat)
 		if !isFinite(rv) || !isFinite(vv) {
 			return finish(fmt.Errorf("%w: %s: r̂·Ap̂ = %g at iteration %d", ErrBreakdown, method, rv, it))
 		}
@@ -606,7 +539,7 @@ func (w *Workspace) BiCGStab(ctx context.Context, a Operator, b, x []float64, m 
 				return finish(fmt.Errorf("%w: %s: r·AM⁻¹r = %g right after a fresh start at iteration %d: the operator does not suit BiCGStab", ErrBreakdown, method, rv, it))
 			}
 			st.Restarts++
-			rnorm = residualTo(a, r, b, x)
+			rnorm = w.k.residual(a, r, b, x)
 			fresh = true
 			cfg.progress(it, rnorm/bnorm)
 			continue
@@ -617,13 +550,13 @@ func (w *Workspace) BiCGStab(ctx context.Context, a Operator, b, x []float64, m 
 		}
 
 		// x += α p̂, s = r − α v (stored in r)
-		ss := stepAndNorm(x, r, alpha, phat, v)
+		ss := w.k.step(x, r, alpha, phat, v)
 		sres := math.Sqrt(ss) / bnorm
 		if !isFinite(sres) {
 			return finish(fmt.Errorf("%w: %s: residual %g at iteration %d", ErrBreakdown, method, sres, it))
 		}
 		if sres <= cfg.Tolerance {
-			rnorm = residualTo(a, r, b, x)
+			rnorm = w.k.residual(a, r, b, x)
 			cfg.progress(it, rnorm/bnorm)
 			if rnorm/bnorm <= cfg.Tolerance {
 				st.Residual = rnorm / bnorm
@@ -640,14 +573,14 @@ func (w *Workspace) BiCGStab(ctx context.Context, a Operator, b, x []float64, m 
 		if err != nil {
 			return finish(err)
 		}
-		ts, tt := mulVecDots2(a, t, shat, r)
+		ts, tt := w.k.mulVecDots2(a, t, shat, r)
 		if !isFinite(ts) || !isFinite(tt) {
 			return finish(fmt.Errorf("%w: %s: t·s = %g, t·t = %g at iteration %d", ErrBreakdown, method, ts, tt, it))
 		}
 		if tt == 0 || math.Abs(ts) <= breakdownCos*math.Sqrt(tt)*math.Sqrt(ss) {
 			// ω ≈ 0: keep the half step (x already holds it) and restart from its residual.
 			st.Restarts++
-			rnorm = residualTo(a, r, b, x)
+			rnorm = w.k.residual(a, r, b, x)
 			fresh = true
 			cfg.progress(it, rnorm/bnorm)
 			continue
@@ -655,18 +588,18 @@ func (w *Workspace) BiCGStab(ctx context.Context, a Operator, b, x []float64, m 
 		omega = ts / tt
 
 		// x += ω ŝ, r = s − ω t
-		rnorm = math.Sqrt(stepAndNorm(x, r, omega, shat, t))
+		rnorm = math.Sqrt(w.k.step(x, r, omega, shat, t))
 		res := rnorm / bnorm
 		if !isFinite(res) {
 			return finish(fmt.Errorf("%w: %s: residual %g at iteration %d", ErrBreakdown, method, res, it))
 		}
 		cfg.progress(it, res)
 		if res < bestRes {
-			copy(xBest, x)
+			w.k.copy(xBest, x)
 			bestRes = res
 		}
 		if res <= cfg.Tolerance {
-			rnorm = residualTo(a, r, b, x)
+			rnorm = w.k.residual(a, r, b, x)
 			if rnorm/bnorm <= cfg.Tolerance {
 				st.Residual = rnorm / bnorm
 				st.Converged = true
