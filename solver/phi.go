@@ -62,9 +62,8 @@ type PhiSystem struct {
 	// Isolated counts the unknowns cut off from every prescribed value (set to 0).
 	Isolated int
 	// Inflow is the flux through the inlet, U × the inlet's open length, m²/s (0 with Outer).
-	Inflow     float64
-	Red, Black []int32 // unknowns of nodes with i + j even and odd
-	outer      bool    // assembled under PhiOptions.Outer: the initial guess is zero
+	Inflow float64
+	outer  bool // assembled under PhiOptions.Outer: the initial guess is zero
 }
 
 // PhiOptions changes how AssemblePhi builds the φ problem. The zero value (and nil) means the
@@ -325,21 +324,21 @@ func AssemblePhi(m *mesh.Mesh, s *bc.Set, circulation []float64, opt *PhiOptions
 		}
 	}
 	// Unknowns: every piece of every cell whose value is not prescribed.
+	count := 0
+	for k := range n {
+		if !sys.Dirichlet[k] {
+			count += faces.Pieces(k)
+		}
+	}
+	sys.Nodes = pages.Make[int32](count)[:0]
 	for k := range n {
 		sys.Unknown[k] = -1
 		if sys.Dirichlet[k] || faces.Pieces(k) == 0 {
 			continue
 		}
 		sys.Unknown[k] = int32(len(sys.Nodes))
-		i, j := k%g.NX, k/g.NX
 		for range faces.Pieces(k) {
-			u := int32(len(sys.Nodes))
 			sys.Nodes = append(sys.Nodes, int32(k))
-			if (i+j)%2 == 0 {
-				sys.Red = append(sys.Red, u)
-			} else {
-				sys.Black = append(sys.Black, u)
-			}
 		}
 	}
 	nu := len(sys.Nodes)
@@ -586,7 +585,8 @@ func SolvePhi(ctx context.Context, sys *PhiSystem, method string, set *Settings)
 		solve = func(x []float64) (Stats, error) { return ws.CG(ctx, sys.A, sys.B, x, mg, set) }
 	case MethodSOR:
 		g := sys.Mesh.Grid
-		sor := &SOR{Omega: OptimalOmega(g.NX-1, g.NY-1), Red: sys.Red, Black: sys.Black}
+		red, black := redBlack(sys.Nodes, g.NX)
+		sor := &SOR{Omega: OptimalOmega(g.NX-1, g.NY-1), Red: red, Black: black}
 		a := sys.A.CSR() // SOR walks CSR rows
 		solve = func(x []float64) (Stats, error) { return sor.Solve(ctx, a, sys.B, x, set) }
 	default:
@@ -609,12 +609,12 @@ func SolvePhi(ctx context.Context, sys *PhiSystem, method string, set *Settings)
 // prescribed nodes keep their values in a map rather than a grid-sized array.
 func (sys *PhiSystem) Known(k int) float64 { return sys.known[int32(k)] }
 
-// Release drops the matrix, the right-hand side and the colour lists, which
+// Release drops the matrix and the right-hand side, which
 // only the solves use, so that a run can reuse their memory for the next stage; the maps, faces,
 // cuts and prescribed values stay, which is all that reading a solution needs. SolvePhi refuses a
 // released system.
 func (sys *PhiSystem) Release() {
-	sys.A, sys.B, sys.Red, sys.Black = nil, nil, nil, nil
+	sys.A, sys.B = nil, nil
 }
 
 // expand returns φ at every node from the unknowns x.

@@ -414,8 +414,13 @@ func (sys *PsiSystem) solverFor(method string) (func(ctx context.Context, b, x [
 // redBlack returns the unknowns of nodes with i + j even and odd, the colours of SOR (the
 // Shortley–Weller rows are five-point stencils, so no two rows of one colour couple).
 func (sys *PsiSystem) redBlack() (red, black []int32) {
-	nx := sys.Mesh.Grid.NX
-	for u, node := range sys.Nodes {
+	return redBlack(sys.Nodes, sys.Mesh.Grid.NX)
+}
+
+// redBlack splits the unknowns at nodes (on rows of nx nodes) into those of nodes with i + j
+// even and odd.
+func redBlack(nodes []int32, nx int) (red, black []int32) {
+	for u, node := range nodes {
 		if i, j := int(node)%nx, int(node)/nx; (i+j)%2 == 0 {
 			red = append(red, int32(u))
 		} else {

@@ -16,6 +16,7 @@ import (
 // packages of a lower layer (cmd/internal/report may use the scenario it reports on).
 var layers = map[string]int{
 	"phipsi/internal/pages":        -1,
+	"phipsi/internal/par":          -1,
 	"phipsi/mesh":                  0,
 	"phipsi/bc":                    1,
 	"phipsi/solver":                2,

@@ -5,6 +5,7 @@ import (
 	"math"
 
 	"phipsi/internal/pages"
+	"phipsi/internal/par"
 	"phipsi/mesh"
 	"phipsi/solver"
 )
@@ -131,7 +132,6 @@ func velocityField(sol *solver.PsiSolution, fl Fluid) *Field {
 	n := g.Len()
 	f := &Field{Grid: g, Valid: pages.Make[bool](n), U: pages.Make[float64](n), V: pages.Make[float64](n),
 		Speed: pages.Make[float64](n), Cp: pages.Make[float64](n), Pressure: pages.Make[float64](n)}
-	U := sys.BC.Speed
 	psi := sol.Psi
 	h := g.H
 	// value returns ψ at the end of an arm of node k in direction d.
@@ -155,42 +155,59 @@ func velocityField(sol *solver.PsiSolution, fl Fluid) *Field {
 		}
 		return (hm*hm*(fp-f0) + hp*hp*(f0-fm)) / (hp * hm * (hp + hm))
 	}
-	for j := 0; j < g.NY; j++ {
-		for i := 0; i < g.NX; i++ {
-			k := g.Index(i, j)
-			if !m.IsFluid(k) {
-				continue
-			}
-			arms, _ := m.Arms(k)
-			f0 := psi[k]
-			var dx float64
-			switch {
-			case i == 0:
-				// Inlet: one-sided second-order difference when two whole links are available.
-				e := arms[mesh.East]
-				k1 := g.Index(1, j)
-				if e.Boundary == mesh.NoBoundary && g.NX > 2 && m.IsFluid(g.Index(2, j)) {
-					if a1, _ := m.Arms(k1); a1[mesh.East].Boundary == mesh.NoBoundary {
-						dx = (-3*f0 + 4*psi[k1] - psi[g.Index(2, j)]) / (2 * h)
-						break
-					}
-				}
-				dx = (value(i, j, mesh.East, e) - f0) / (e.Theta * h)
-			case i == g.NX-1:
-				dx = 0
-			default:
-				e, w := arms[mesh.East], arms[mesh.West]
-				dx = deriv(f0, value(i, j, mesh.East, e), value(i, j, mesh.West, w), e.Theta*h, w.Theta*h)
-			}
-			nn, s := arms[mesh.North], arms[mesh.South]
-			dy := deriv(f0, value(i, j, mesh.North, nn), value(i, j, mesh.South, s), nn.Theta*h, s.Theta*h)
-			u, v := dy, -dx
-			sp := math.Hypot(u, v)
-			f.Valid[k] = true
-			f.U[k], f.V[k], f.Speed[k] = u, v, sp
-			f.Cp[k] = 1 - (sp/U)*(sp/U)
-			f.Pressure[k] = fl.Pressure + 0.5*fl.Density*(U*U-sp*sp)
+	par.Rows(g.NY, parallelRows, func(_, j0, j1 int) {
+		for j := j0; j < j1; j++ {
+			velocityRow(f, sol, fl, j, value, deriv)
 		}
-	}
+	})
 	return f
+}
+
+// parallelRows is the number of grid rows from which the field stages share their rows among
+// goroutines.
+const parallelRows = 64
+
+// velocityRow fills row j of the velocity field f from ψ.
+func velocityRow(f *Field, sol *solver.PsiSolution, fl Fluid, j int,
+	value func(i, j, d int, a mesh.Arm) float64, deriv func(f0, fp, fm, hp, hm float64) float64) {
+	m := sol.Sys.Mesh
+	g := m.Grid
+	h := g.H
+	U := sol.Sys.BC.Speed
+	psi := sol.Psi
+	for i := 0; i < g.NX; i++ {
+		k := g.Index(i, j)
+		if !m.IsFluid(k) {
+			continue
+		}
+		arms, _ := m.Arms(k)
+		f0 := psi[k]
+		var dx float64
+		switch {
+		case i == 0:
+			// Inlet: one-sided second-order difference when two whole links are available.
+			e := arms[mesh.East]
+			k1 := g.Index(1, j)
+			if e.Boundary == mesh.NoBoundary && g.NX > 2 && m.IsFluid(g.Index(2, j)) {
+				if a1, _ := m.Arms(k1); a1[mesh.East].Boundary == mesh.NoBoundary {
+					dx = (-3*f0 + 4*psi[k1] - psi[g.Index(2, j)]) / (2 * h)
+					break
+				}
+			}
+			dx = (value(i, j, mesh.East, e) - f0) / (e.Theta * h)
+		case i == g.NX-1:
+			dx = 0
+		default:
+			e, w := arms[mesh.East], arms[mesh.West]
+			dx = deriv(f0, value(i, j, mesh.East, e), value(i, j, mesh.West, w), e.Theta*h, w.Theta*h)
+		}
+		nn, s := arms[mesh.North], arms[mesh.South]
+		dy := deriv(f0, value(i, j, mesh.North, nn), value(i, j, mesh.South, s), nn.Theta*h, s.Theta*h)
+		u, v := dy, -dx
+		sp := math.Hypot(u, v)
+		f.Valid[k] = true
+		f.U[k], f.V[k], f.Speed[k] = u, v, sp
+		f.Cp[k] = 1 - (sp/U)*(sp/U)
+		f.Pressure[k] = fl.Pressure + 0.5*fl.Density*(U*U-sp*sp)
+	}
 }

@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"math"
 
+	"phipsi/internal/par"
 	"phipsi/mesh"
 	"phipsi/solver"
 )
@@ -206,20 +207,29 @@ func Mismatch(r *Result, phi *solver.PhiSolution) (float64, error) {
 	if phi.Sys.Mesh.Grid != m.Grid {
 		return 0, fmt.Errorf("flow: φ was solved on a %d×%d grid, ψ on %d×%d", phi.Sys.Mesh.NX, phi.Sys.Mesh.NY, m.NX, m.NY)
 	}
-	pn := phiNodes{sol: phi, g: m.Grid}
 	away := awayFromBoundaries(m, MismatchDistance)
+	g := m.Grid
+	nr := par.Ranges(g.NY, parallelRows)
+	worsts, counts := make([]float64, nr), make([]int, nr)
+	par.Rows(g.NY, parallelRows, func(r0, j0, j1 int) {
+		pn := phiNodes{sol: phi, g: g}
+		for k := j0 * g.NX; k < j1*g.NX; k++ {
+			if !away[k] || !r.Field.Valid[k] {
+				continue
+			}
+			u, v, ok := pn.velocity(k%g.NX, k/g.NX)
+			if !ok {
+				continue
+			}
+			counts[r0]++
+			d := math.Hypot(u-r.Field.U[k], v-r.Field.V[k]) / r.Speed
+			worsts[r0] = math.Max(worsts[r0], d)
+		}
+	})
 	worst, count := 0.0, 0
-	for k, ok := range away {
-		if !ok || !r.Field.Valid[k] {
-			continue
-		}
-		u, v, ok := pn.velocity(k%m.NX, k/m.NX)
-		if !ok {
-			continue
-		}
-		count++
-		d := math.Hypot(u-r.Field.U[k], v-r.Field.V[k]) / r.Speed
-		worst = math.Max(worst, d)
+	for q := range nr {
+		worst = math.Max(worst, worsts[q])
+		count += counts[q]
 	}
 	if count == 0 {
 		return 0, fmt.Errorf("flow: no fluid node lies %d spacings from every boundary; refine the grid", MismatchDistance)
