@@ -4,9 +4,13 @@
 // # Matrices
 //
 // CSR is a square matrix in compressed sparse row form, assembled row by row with a Builder
-// (entries of a row in any order, duplicates summed). Its kernels (MulVecTo, ResidualTo,
-// DiagonalTo) allocate nothing and work on fixed blocks of rows; reductions add block sums in
-// block order, so results do not depend on how the blocks are later shared out among goroutines.
+// (entries of a row in any order, duplicates summed). GridMatrix is the form of the ψ and φ
+// systems: a matrix on grid unknowns whose plain rows (4 on the diagonal, −1 to the four
+// neighbours) are one bit each and whose other rows are CSR rows, assembled the same way by a
+// GridBuilder; its products equal a CSR's bit for bit in a twentieth of the memory, and CSR()
+// turns it into one. The kernels (MulVecTo, ResidualTo, DiagonalTo) allocate nothing and work
+// on fixed blocks of rows; reductions add block sums in block order, so results do not depend on
+// how the blocks are shared out among goroutines.
 //
 // # Methods
 //
@@ -16,7 +20,10 @@
 // iteration limit, progress hook; the zero value means the defaults) and report Stats, whose
 // residual is always recomputed from b − A x. A solve that runs out of iterations returns
 // ErrNotConverged with its best x; one that cannot go on returns ErrBreakdown; a cancelled
-// context stops a solve within one iteration.
+// context stops a solve within one iteration. A CG solve whose true residual stalls within the
+// rounding error of computing it, above the tolerance, ends converged with Stats.Floor set.
+// A Workspace holds the Krylov vectors for a sequence of solves (the superposition solves of ψ
+// share one) and runs their kernels on a worker team.
 //
 // How to choose:
 //

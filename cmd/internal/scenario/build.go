@@ -21,13 +21,15 @@ type Plan struct {
 
 // EstimateMemory returns the estimated peak memory of a run on grid g with the given number of
 // bodies, bytes. The model is fitted to peaks measured with /usr/bin/time on the bundled
-// scenarios (240k to 920k nodes) and a 4M-node channel (all within 20 %): about 270 B per node for
-// the classification, the ψ and φ systems, the multigrid hierarchy, the shared Krylov workspace,
-// the solution and derived fields and the collector's headroom, 60 B per node for each body's
-// solution vector and its share of the rest, and a fixed 40 MiB for the program, its pictures and
-// tables.
+// scenarios (240k to 920k nodes, with their pictures), a 1M-node channel with pictures and a
+// 4M-node and a 16M-node channel without (all within 20 %, above the measurement but for the
+// 1M-node channel, 2 % below): about 140 B per node for the classification, the ψ and φ systems,
+// the multigrid hierarchy, the Krylov vectors, the solution and derived fields and the
+// collector's headroom (the stages reuse each other's memory, so the peak is the largest stage's),
+// 10 B per node for each body's solution vector, and a fixed 40 MiB for the program, its
+// pictures and tables.
 func EstimateMemory(g mesh.Grid, bodies int) int64 {
-	perNode := 270 + 60*bodies
+	perNode := 140 + 10*bodies
 	return int64(g.Len())*int64(perNode) + 40<<20
 }
 
