@@ -4,6 +4,8 @@ import (
 	"fmt"
 	"math"
 	"math/bits"
+	"runtime"
+	"sync"
 
 	"phipsi/mesh"
 )
@@ -127,6 +129,72 @@ func (s *GridMatrix) other(u int) int {
 		return -1
 	}
 	return int(s.before[u>>6]) + bits.OnesCount64(^w&(bit-1))
+}
+
+// buildRowsMin is the number of rows from which assembly shares them among goroutines.
+const buildRowsMin = 1 << 16
+
+// rowRanges returns the number of ranges buildRows should use for n rows.
+func rowRanges(n int) int {
+	if n < buildRowsMin {
+		return 1
+	}
+	return runtime.GOMAXPROCS(0)
+}
+
+// buildRows assembles the GridMatrix on the unknowns nodes by calling row(b, r, u) for every
+// unknown u, in order within each of nr ranges of rows, the ranges on goroutines of their own; r
+// is u's range. row adds row u's entries with b.Add (buildRows ends the row) and may write state
+// of row u or of range r alone. The ranges start at multiples of 64 rows, so each owns its words
+// of the plain bitset, and their other rows are joined in range order: the matrix is a
+// GridBuilder's, whatever the number of ranges. The first error in range order is returned.
+func buildRows(g mesh.Grid, nodes, unknown []int32, nr int, row func(b *GridBuilder, r, u int) error) (*GridMatrix, error) {
+	if len(unknown) != g.Len() || nr < 1 {
+		panic(fmt.Sprintf("solver: buildRows: len(unknown) = %d and %d ranges, want %d and at least 1", len(unknown), nr, g.Len()))
+	}
+	m := newGridMatrix(g, nodes, unknown)
+	n := m.N
+	words := len(m.plain)
+	parts := make([]*GridMatrix, nr)
+	errs := make([]error, nr)
+	var wg sync.WaitGroup
+	for r := range nr {
+		lo, hi := 64*(r*words/nr), min(n, 64*((r+1)*words/nr))
+		part := &GridMatrix{N: n, grid: g, nodes: nodes, unknown: unknown, plain: m.plain, before: m.before, restPtr: []int{0}}
+		parts[r] = part
+		wg.Go(func() {
+			b := &GridBuilder{m: part, row: lo}
+			for u := lo; u < hi; u++ {
+				if err := row(b, r, u); err != nil {
+					errs[r] = err
+					return
+				}
+				b.EndRow()
+			}
+		})
+	}
+	wg.Wait()
+	for _, err := range errs {
+		if err != nil {
+			return nil, err
+		}
+	}
+	// Join the parts: each counted its other rows from 0.
+	for r, part := range parts {
+		w0, w1 := r*words/nr, (r+1)*words/nr
+		off := int32(len(m.restPtr) - 1)
+		for w := w0; w < w1; w++ {
+			m.before[w] += off
+		}
+		base := len(m.restCol)
+		for _, p := range part.restPtr[1:] {
+			m.restPtr = append(m.restPtr, base+p)
+		}
+		m.restCol = append(m.restCol, part.restCol...)
+		m.restVal = append(m.restVal, part.restVal...)
+		m.restDiag = append(m.restDiag, part.restDiag...)
+	}
+	return m, nil
 }
 
 // setRow stores row u (columns ascending): as plain when it is the plain stencil, else among

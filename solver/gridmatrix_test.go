@@ -2,6 +2,7 @@ package solver
 
 import (
 	"math/rand/v2"
+	"runtime"
 	"slices"
 	"testing"
 
@@ -78,5 +79,46 @@ func TestGridMatrixExact(t *testing.T) {
 				t.Errorf("holds %d bytes for %d rows, want at most 12 a row", gm.Bytes(), n)
 			}
 		})
+	}
+}
+
+// TestBuildRowsThreads checks that the ψ and φ systems assembled with their rows shared among
+// goroutines are the ones assembled on a single goroutine, bit for bit.
+func TestBuildRowsThreads(t *testing.T) {
+	if testing.Short() {
+		t.Skip("a grid above buildRowsMin")
+	}
+	psi := mgPassageCylinder.psi(t, 2*buildRowsMin)
+	defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(0))
+	var want *PhiSystem
+	var wantPsi *PsiSystem
+	for _, procs := range []int{1, 2, 3} {
+		runtime.GOMAXPROCS(procs)
+		ps, err := AssemblePsi(psi.Mesh, psi.BC)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if wantPsi == nil {
+			wantPsi = ps
+		} else {
+			a, b := ps.A.CSR(), wantPsi.A.CSR()
+			if !slices.Equal(a.Col, b.Col) || !slices.Equal(a.Val, b.Val) || !slices.Equal(ps.B0, wantPsi.B0) ||
+				!slices.Equal(ps.BK[0].Index, wantPsi.BK[0].Index) || !slices.Equal(ps.BK[0].Val, wantPsi.BK[0].Val) {
+				t.Errorf("GOMAXPROCS %d: the ψ system differs from the one built on one goroutine", procs)
+			}
+		}
+		sys, err := AssemblePhi(psi.Mesh, psi.BC, []float64{0.3}, nil)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if want == nil {
+			want = sys
+			continue
+		}
+		a, b := sys.A.CSR(), want.A.CSR()
+		if !slices.Equal(a.RowPtr, b.RowPtr) || !slices.Equal(a.Col, b.Col) || !slices.Equal(a.Val, b.Val) ||
+			!slices.Equal(sys.B, want.B) || !slices.Equal(sys.A.before, want.A.before) || !slices.Equal(sys.A.plain, want.A.plain) {
+			t.Errorf("GOMAXPROCS %d: the system differs from the one built on one goroutine", procs)
+		}
 	}
 }

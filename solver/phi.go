@@ -348,18 +348,19 @@ func AssemblePhi(m *mesh.Mesh, s *bc.Set, circulation []float64, opt *PhiOptions
 	sys.B = pages.Make[float64](nu)
 	inflow := make([]float64, nu)
 	anchored := make([]bool, nu) // couples to a prescribed value
-	bld := NewGridBuilder(g, sys.Nodes, sys.Unknown)
-	var parts []mesh.FacePart
 	type side struct {
 		face, nb int
 		high     bool
 	}
-	var sides []side
-	for row := range nu {
+	// Each row writes its own entries of B, inflow and anchored only, so the rows can be built
+	// on several goroutines (buildRows).
+	a, err := buildRows(g, sys.Nodes, sys.Unknown, rowRanges(nu), func(bld *GridBuilder, _, row int) error {
+		var partBuf [8]mesh.FacePart
+		var sideBuf [4]side
+		sides := sideBuf[:0]
 		k := int(sys.Nodes[row])
 		piece := row - int(sys.Unknown[k])
 		i, j := k%g.NX, k/g.NX
-		sides = sides[:0]
 		if i == 0 {
 			sides = append(sides, side{faces.InletFace(j), -1, true})
 		} else {
@@ -376,8 +377,7 @@ func AssemblePhi(m *mesh.Mesh, s *bc.Set, circulation []float64, opt *PhiOptions
 		}
 		diag := 0.0
 		for _, sd := range sides {
-			parts = faces.Parts(parts[:0], sd.face)
-			for _, p := range parts {
+			for _, p := range faces.Parts(partBuf[:0], sd.face) {
 				mine, other := p.Low, p.High
 				if sd.high {
 					mine, other = p.High, p.Low
@@ -395,7 +395,7 @@ func AssemblePhi(m *mesh.Mesh, s *bc.Set, circulation []float64, opt *PhiOptions
 					continue
 				}
 				if other == mesh.NoPiece {
-					return nil, fmt.Errorf("solver: node (%d, %d): an open face part has no cell piece beyond it", i, j)
+					return fmt.Errorf("solver: node (%d, %d): an open face part has no cell piece beyond it", i, j)
 				}
 				alpha := faces.Fraction(sd.face, p)
 				// Across a cut the neighbour's value is moved to this row's branch: φ_nb − Δ, with
@@ -411,19 +411,22 @@ func AssemblePhi(m *mesh.Mesh, s *bc.Set, circulation []float64, opt *PhiOptions
 					continue
 				}
 				if sys.Unknown[sd.nb] < 0 {
-					return nil, fmt.Errorf("solver: node (%d, %d): an open face leads to a node without an unknown", i, j)
+					return fmt.Errorf("solver: node (%d, %d): an open face leads to a node without an unknown", i, j)
 				}
 				bld.Add(int(sys.Unknown[sd.nb])+int(other), -alpha)
 				sys.B[row] -= alpha * delta
 			}
 		}
 		if !(diag > 0) {
-			return nil, fmt.Errorf("solver: node (%d, %d): dual-cell piece %d has no open face", i, j, piece)
+			return fmt.Errorf("solver: node (%d, %d): dual-cell piece %d has no open face", i, j, piece)
 		}
 		bld.Add(row, diag)
-		bld.EndRow()
+		return nil
+	})
+	if err != nil {
+		return nil, err
 	}
-	sys.A = bld.Matrix()
+	sys.A = a
 	if err := sys.isolate(anchored, inflow); err != nil {
 		return nil, err
 	}

@@ -118,9 +118,16 @@ func AssemblePsi(m *mesh.Mesh, s *bc.Set) (*PsiSystem, error) {
 	for b := range sys.BK {
 		sys.BK[b].N = n
 	}
-	bld := NewGridBuilder(g, sys.Nodes, sys.Unknown)
-	for row, node := range sys.Nodes {
-		k := int(node)
+	// Each row writes its own entry of B0 and its range's part of each BK, so the rows can be
+	// built on several goroutines (buildRows); the parts are joined in range order.
+	nr := rowRanges(n)
+	bkParts := make([][]SparseVector, nr)
+	for r := range bkParts {
+		bkParts[r] = make([]SparseVector, len(sys.BK))
+	}
+	a, err := buildRows(g, sys.Nodes, sys.Unknown, nr, func(bld *GridBuilder, r, row int) error {
+		bk := bkParts[r]
+		k := int(sys.Nodes[row])
 		i, j := k%g.NX, k/g.NX
 		arms, _ := m.Arms(k)
 		var c [4]float64
@@ -148,7 +155,7 @@ func AssemblePsi(m *mesh.Mesh, s *bc.Set) (*PsiSystem, error) {
 			arm := arms[d]
 			if arm.Boundary != mesh.NoBoundary {
 				end := g.At(i, j).Add(mesh.Point{X: float64(steps[d][0]), Y: float64(steps[d][1])}.Scale(arm.Theta * g.H))
-				sys.addKnown(row, c[d], arm.Boundary, end)
+				sys.addKnown(bk, row, c[d], arm.Boundary, end)
 				continue
 			}
 			ni, nj := i+steps[d][0], j+steps[d][1]
@@ -157,24 +164,34 @@ func AssemblePsi(m *mesh.Mesh, s *bc.Set) (*PsiSystem, error) {
 			case sys.Unknown[nk] >= 0:
 				bld.Add(int(sys.Unknown[nk]), -c[d])
 			case m.Kind[nk] == mesh.Pinned:
-				sys.addKnown(row, c[d], int(m.Owner[nk]), g.At(ni, nj))
+				sys.addKnown(bk, row, c[d], int(m.Owner[nk]), g.At(ni, nj))
 			case m.Kind[nk] == mesh.Fluid: // an inlet node, or an outlet node under Outer
 				sys.B0[row] += c[d] * sys.knownNode(ni, nj)
 			default:
-				return nil, fmt.Errorf("solver: node (%d, %d) has a whole link to a node without a value", i, j)
+				return fmt.Errorf("solver: node (%d, %d) has a whole link to a node without a value", i, j)
 			}
 		}
-		bld.EndRow()
+		return nil
+	})
+	if err != nil {
+		return nil, err
 	}
-	sys.A = bld.Matrix()
+	sys.A = a
+	for b := range sys.BK {
+		for _, part := range bkParts {
+			sys.BK[b].Index = append(sys.BK[b].Index, part[b].Index...)
+			sys.BK[b].Val = append(sys.BK[b].Val, part[b].Val...)
+		}
+	}
 	return sys, nil
 }
 
 // addKnown moves the term c·ψ of a boundary point p to the right-hand side: into the body's
-// own right-hand side when its ψ is an unknown constant, else with its known value.
-func (sys *PsiSystem) addKnown(row int, c float64, boundary int, p mesh.Point) {
+// own right-hand side (its part bk of the row's range) when its ψ is an unknown constant, else
+// with its known value.
+func (sys *PsiSystem) addKnown(bk []SparseVector, row int, c float64, boundary int, p mesh.Point) {
 	if boundary >= 2 && sys.BC.Prescribed == nil {
-		sys.BK[boundary-2].add(row, c) // rows come in increasing order
+		bk[boundary-2].add(row, c) // a range's rows come in increasing order
 		return
 	}
 	sys.B0[row] += c * sys.knownValue(boundary, p, 0)
