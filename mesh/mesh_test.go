@@ -303,3 +303,40 @@ func TestPlanGrid(t *testing.T) {
 		t.Error("a 1e19-cell grid was planned, want an error")
 	}
 }
+
+// TestWallSampleBetween checks that SampleBetween returns Sample's points, with the same arc
+// lengths, for every piece that reaches into the range, on a smooth wall and on one with a step.
+func TestWallSampleBetween(t *testing.T) {
+	for _, smooth := range []bool{false, true} {
+		w, err := NewWall([]Point{{0, 0}, {1, 0.1}, {2, 0.1}, {2, 0.4}, {3, 0.3}, {4, 0.3}}, smooth, false)
+		if err != nil {
+			t.Fatal(err)
+		}
+		const ds = 0.01
+		all := w.Sample(ds)
+		for _, r := range [][2]float64{{1.5, 2.5}, {2, 2}, {-1, 5}, {3.2, 3.3}} {
+			got := w.SampleBetween(r[0], r[1], ds)
+			in := map[SurfacePoint]bool{}
+			for _, p := range all {
+				in[p] = true
+			}
+			for _, p := range got {
+				if !in[p] {
+					t.Fatalf("smooth %v, range %v: point %+v is not one of Sample's", smooth, r, p)
+				}
+			}
+			have := map[SurfacePoint]bool{}
+			for _, p := range got {
+				have[p] = true
+			}
+			for _, p := range all {
+				if p.P.X >= r[0] && p.P.X <= r[1] && !have[p] {
+					t.Fatalf("smooth %v, range %v: Sample's point %+v in the range is missing", smooth, r, p)
+				}
+			}
+			if len(got) >= len(all) && r[0] > 0 {
+				t.Errorf("smooth %v, range %v: %d points of %d, want fewer", smooth, r, len(got), len(all))
+			}
+		}
+	}
+}

@@ -297,6 +297,12 @@ func (w *Wall) Intersect(dst []float64, a, b Point) []float64 {
 // Sample returns points along the wall in x order (step faces included), spaced by at most ds in
 // arc length, each with the unit normal into the fluid.
 func (w *Wall) Sample(ds float64) []SurfacePoint {
+	return w.SampleBetween(math.Inf(-1), math.Inf(1), ds)
+}
+
+// SampleBetween returns the points of Sample(ds) on the pieces of the wall that reach into
+// xa ≤ x ≤ xb (whole pieces, so a few points may lie outside), with the same arc lengths S.
+func (w *Wall) SampleBetween(xa, xb, ds float64) []SurfacePoint {
 	var out []SurfacePoint
 	s := 0.0
 	side := 1.0 // lower wall: normal (−y′, 1)/…; upper wall: the opposite
@@ -318,7 +324,10 @@ func (w *Wall) Sample(ds float64) []SurfacePoint {
 				prevY = y
 			}
 			m := max(1, int(math.Ceil(length/ds)))
-			wgt := length / float64(m)
+			if x1 < xa || x0 > xb {
+				m = 0 // the piece lies outside the range: its length still counts in S
+			}
+			wgt := length / math.Max(1, float64(m))
 			for q := range m {
 				x := x0 + (x1-x0)*(float64(q)+0.5)/float64(m)
 				y, dy := r.eval(x)
@@ -332,9 +341,12 @@ func (w *Wall) Sample(ds float64) []SurfacePoint {
 			y1, y2 := r.y[len(r.y)-1], w.runs[ri+1].y[0]
 			l := math.Abs(y2 - y1)
 			m := max(1, int(math.Ceil(l/ds)))
+			if xs < xa || xs > xb {
+				m = 0
+			}
 			// Lower wall: a rise faces upstream (−x); upper wall: a drop faces upstream.
 			n := Point{-side * math.Copysign(1, y2-y1), 0}
-			wgt := l / float64(m)
+			wgt := l / math.Max(1, float64(m))
 			for q := range m {
 				y := y1 + (y2-y1)*(float64(q)+0.5)/float64(m)
 				out = append(out, SurfacePoint{S: s + wgt*(float64(q)+0.5), P: Point{xs, y}, N: n, W: wgt})

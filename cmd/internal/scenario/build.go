@@ -204,7 +204,7 @@ func (s *Scenario) checkBodies(geo *mesh.Geometry) error {
 		}
 		// A body corner may poke through a wall between wall samples: test wall points too.
 		for _, w := range []*mesh.Wall{geo.Lower, geo.Upper} {
-			for _, p := range w.Sample(size / 2000) {
+			for _, p := range w.SampleBetween(box.Min.X, box.Max.X, size/2000) {
 				if b.Shape.Contains(p.P) {
 					return s.Errorf(key, "%q crosses a wall near (%.6g, %.6g): obstacles must lie inside the channel", b.Name, p.P.X, p.P.Y)
 				}
