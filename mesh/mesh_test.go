@@ -314,6 +314,15 @@ func TestWallSampleBetween(t *testing.T) {
 		}
 		const ds = 0.01
 		all := w.Sample(ds)
+		// Sample covers the whole wall: its weights add up to the arc length, which for this
+		// wall is at least the x extent plus the step's height.
+		total := 0.0
+		for _, p := range all {
+			total += p.W
+		}
+		if last := all[len(all)-1]; total < 4.3 || math.Abs(last.S+last.W/2-total) > 1e-9 {
+			t.Fatalf("smooth %v: weights add up to %g, last point's S + W/2 = %g; want equal and ≥ 4.3", smooth, total, last.S+last.W/2)
+		}
 		for _, r := range [][2]float64{{1.5, 2.5}, {2, 2}, {-1, 5}, {3.2, 3.3}} {
 			got := w.SampleBetween(r[0], r[1], ds)
 			in := map[SurfacePoint]bool{}

@@ -300,8 +300,8 @@ func (w *Wall) Sample(ds float64) []SurfacePoint {
 	return w.SampleBetween(math.Inf(-1), math.Inf(1), ds)
 }
 
-// SampleBetween returns the points of Sample(ds) on the pieces of the wall that reach into
-// xa ≤ x ≤ xb (whole pieces, so a few points may lie outside), with the same arc lengths S.
+// SampleBetween returns the points of Sample(ds) with xa ≤ x ≤ xb, and a few beyond each end,
+// with the same arc lengths S.
 func (w *Wall) SampleBetween(xa, xb, ds float64) []SurfacePoint {
 	var out []SurfacePoint
 	s := 0.0
@@ -324,11 +324,18 @@ func (w *Wall) SampleBetween(xa, xb, ds float64) []SurfacePoint {
 				prevY = y
 			}
 			m := max(1, int(math.Ceil(length/ds)))
-			if x1 < xa || x0 > xb {
-				m = 0 // the piece lies outside the range: its length still counts in S
+			wgt := length / float64(m)
+			// The points q of the piece with x in [xa, xb], one more on each side (x rises with
+			// q); a piece outside the range gives none, but its length still counts in S.
+			qa, qb := 0, m
+			if x1 > x0 {
+				fm := float64(m)
+				qa = int(math.Max(0, math.Floor((xa-x0)/(x1-x0)*fm-0.5)-1))
+				qb = int(math.Min(fm, math.Ceil((xb-x0)/(x1-x0)*fm-0.5)+2))
+			} else if x0 < xa || x0 > xb {
+				qb = 0
 			}
-			wgt := length / math.Max(1, float64(m))
-			for q := range m {
+			for q := qa; q < qb; q++ {
 				x := x0 + (x1-x0)*(float64(q)+0.5)/float64(m)
 				y, dy := r.eval(x)
 				n := Point{-dy, 1}.Scale(side / math.Hypot(1, dy))
