@@ -8,6 +8,8 @@ import (
 	"path/filepath"
 	"strings"
 	"testing"
+
+	"phipsi/cmd/internal/scenario"
 )
 
 // call runs the command in-process and returns its exit status and output.
@@ -61,6 +63,23 @@ func TestBundledScenarios(t *testing.T) {
 				if _, ok := sum["flow"].(map[string]any)[k]; !ok {
 					t.Errorf("summary.json flow lacks %q", k)
 				}
+			}
+			// The inputs echo the scenario file.
+			sc, err := scenario.Load(f)
+			if err != nil {
+				t.Fatal(err)
+			}
+			in, _ := sum["inputs"].(map[string]any)
+			want := map[string]float64{"density": sc.Fluid.Density, "inlet_speed": sc.Inflow.Speed, "inlet_pressure": sc.Inflow.Pressure,
+				"sound_speed": sc.Fluid.SoundSpeed, "tolerance": sc.Solver.Tolerance, "max_iterations": float64(sc.Solver.MaxIterations)}
+			for k, v := range want {
+				if got, ok := in[k].(float64); !ok || got != v {
+					t.Errorf("summary.json inputs.%s = %v, want %v", k, in[k], v)
+				}
+			}
+			if pv, ok := in["vapour_pressure"].(float64); sc.Fluid.HasVapourPressure && (!ok || pv != sc.Fluid.VapourPressure) ||
+				!sc.Fluid.HasVapourPressure && in["vapour_pressure"] != nil {
+				t.Errorf("summary.json inputs.vapour_pressure = %v, want %v (given: %v)", in["vapour_pressure"], sc.Fluid.VapourPressure, sc.Fluid.HasVapourPressure)
 			}
 			for _, o := range sum["obstacles"].([]any) {
 				ob := o.(map[string]any)

@@ -23,6 +23,7 @@ type Summary struct {
 	Name       string          `json:"name"`
 	Title      string          `json:"title"`
 	Version    string          `json:"version"`
+	Inputs     InputInfo       `json:"inputs"`
 	Grid       GridInfo        `json:"grid"`
 	Solve      SolveInfo       `json:"solve"`
 	Flow       FlowInfo        `json:"flow"`
@@ -63,6 +64,18 @@ type GridInfo struct {
 	Spacing  float64 `json:"spacing"`
 	Unknowns int     `json:"unknowns"`
 	Cells    int     `json:"cells"`
+}
+
+// InputInfo echoes the scenario's physical and solver settings, so that a summary read on its own
+// says what was computed.
+type InputInfo struct {
+	Density        float64  `json:"density"`         // kg/m³
+	InletSpeed     float64  `json:"inlet_speed"`     // m/s, the reference speed U
+	InletPressure  float64  `json:"inlet_pressure"`  // Pa
+	VapourPressure *float64 `json:"vapour_pressure"` // Pa; null when not given
+	SoundSpeed     float64  `json:"sound_speed"`     // m/s, for the Mach check
+	Tolerance      float64  `json:"tolerance"`       // relative residual asked of every solve
+	MaxIterations  int      `json:"max_iterations"`  // per solve
 }
 
 // SolveInfo describes the linear solves.
@@ -197,6 +210,12 @@ func NewSummary(in Input) (*Summary, error) {
 	sc := in.Scenario
 	s := &Summary{Name: sc.Name, Title: sc.Title, Version: in.Version, Caution: Caution,
 		Obstacles: []ObstacleInfo{}, Walls: []WallInfo{}, Probes: []ProbeInfo{}, Warnings: []string{}}
+	s.Inputs = InputInfo{Density: sc.Fluid.Density, InletSpeed: sc.Inflow.Speed, InletPressure: sc.Inflow.Pressure,
+		SoundSpeed: sc.Fluid.SoundSpeed, Tolerance: sc.Solver.Tolerance, MaxIterations: sc.Solver.MaxIterations}
+	if sc.Fluid.HasVapourPressure {
+		pv := sc.Fluid.VapourPressure
+		s.Inputs.VapourPressure = &pv
+	}
 	s.Grid = GridInfo{NX: m.NX, NY: m.NY, Spacing: m.H, Unknowns: len(sys.Nodes), Cells: m.Cells()}
 	s.Solve = SolveInfo{Method: in.Method, Solves: len(sol.Solves), Seconds: sol.Solve.Seconds(), SetupSeconds: sol.Setup.Seconds()}
 	for _, st := range sol.Solves {
