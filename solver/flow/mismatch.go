@@ -246,17 +246,25 @@ func awayFromBoundaries(m *mesh.Mesh, dist float64) []bool {
 	r := dist * h
 	away := make([]bool, g.Len())
 	x0, x1 := g.X0+r, g.X(g.NX-1)-r
-	for k := range away {
-		x := g.X(k % g.NX)
-		away[k] = m.IsFluid(k) && x >= x0-1e-9*h && x <= x1+1e-9*h
-	}
+	var samples []mesh.SurfacePoint
 	for id := range m.NumBoundaries() {
-		for _, sp := range m.Sample(id, h/16) {
+		samples = append(samples, m.Sample(id, h/16)...)
+	}
+	// Each range of rows marks its own nodes, looking at every sample near them.
+	par.Rows(g.NY, parallelRows, func(_, ja, jb int) {
+		for k := ja * g.NX; k < jb*g.NX; k++ {
+			x := g.X(k % g.NX)
+			away[k] = m.IsFluid(k) && x >= x0-1e-9*h && x <= x1+1e-9*h
+		}
+		for _, sp := range samples {
 			p := sp.P
+			j0 := max(ja, int(math.Floor((p.Y-r-g.Y0)/h)))
+			j1 := min(jb-1, int(math.Ceil((p.Y+r-g.Y0)/h)))
+			if j0 > j1 {
+				continue
+			}
 			i0 := max(0, int(math.Floor((p.X-r-g.X0)/h)))
 			i1 := min(g.NX-1, int(math.Ceil((p.X+r-g.X0)/h)))
-			j0 := max(0, int(math.Floor((p.Y-r-g.Y0)/h)))
-			j1 := min(g.NY-1, int(math.Ceil((p.Y+r-g.Y0)/h)))
 			for j := j0; j <= j1; j++ {
 				for i := i0; i <= i1; i++ {
 					if g.At(i, j).Sub(p).Norm() < r*(1-1e-9) {
@@ -265,6 +273,6 @@ func awayFromBoundaries(m *mesh.Mesh, dist float64) []bool {
 				}
 			}
 		}
-	}
+	})
 	return away
 }
