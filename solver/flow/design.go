@@ -168,12 +168,25 @@ func (r *Result) Clearance(k int, ds float64) (wall, body float64) {
 	m := r.Sol.Sys.Mesh
 	geo := m.Geom
 	own := geo.Bodies[k].Shape.Sample(ds)
+	box := geo.Bodies[k].Shape.Bounds()
+	// nearest is the least distance from q to the body's samples, or best when no sample can be
+	// nearer than best: the samples lie in the body's box, so the distance from q to the box
+	// bounds them all from below.
+	nearest := func(q mesh.Point, best float64) float64 {
+		dx := math.Max(0, math.Max(box.Min.X-q.X, q.X-box.Max.X))
+		dy := math.Max(0, math.Max(box.Min.Y-q.Y, q.Y-box.Max.Y))
+		if math.Hypot(dx, dy) >= best {
+			return best
+		}
+		for _, p := range own {
+			best = math.Min(best, p.P.Sub(q).Norm())
+		}
+		return best
+	}
 	wall, body = math.Inf(1), math.Inf(1)
 	for id := range 2 {
 		for _, w := range m.Sample(id, ds) {
-			for _, p := range own {
-				wall = math.Min(wall, p.P.Sub(w.P).Norm())
-			}
+			wall = nearest(w.P, wall)
 		}
 	}
 	for j, b := range geo.Bodies {
@@ -181,9 +194,7 @@ func (r *Result) Clearance(k int, ds float64) (wall, body float64) {
 			continue
 		}
 		for _, q := range b.Shape.Sample(ds) {
-			for _, p := range own {
-				body = math.Min(body, p.P.Sub(q.P).Norm())
-			}
+			body = nearest(q.P, body)
 		}
 	}
 	return wall, body
