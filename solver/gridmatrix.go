@@ -75,9 +75,6 @@ func NewGridBuilder(g mesh.Grid, nodes, unknown []int32) *GridBuilder {
 	return &GridBuilder{m: newGridMatrix(g, nodes, unknown)}
 }
 
-// Row returns the index of the row that Add currently adds to.
-func (b *GridBuilder) Row() int { return b.row }
-
 // Add adds v to the entry in column col of the current row.
 func (b *GridBuilder) Add(col int, v float64) {
 	if b.done || b.row >= b.m.N {
@@ -251,12 +248,6 @@ func (s *GridMatrix) isPlain(u int, cols []int32, vals []float64) bool {
 
 // Len returns the number of rows (and columns).
 func (s *GridMatrix) Len() int { return s.N }
-
-// Grid returns the grid of the unknowns.
-func (s *GridMatrix) Grid() mesh.Grid { return s.grid }
-
-// NodeOf returns the node of each unknown (the slice the GridMatrix was made with).
-func (s *GridMatrix) NodeOf() []int32 { return s.nodes }
 
 // Plain returns the number of plain rows.
 func (s *GridMatrix) Plain() int { return s.N - (len(s.restPtr) - 1) }
