@@ -589,7 +589,11 @@ func SolvePhi(ctx context.Context, sys *PhiSystem, method string, set *Settings)
 	case MethodSOR:
 		g := sys.Mesh.Grid
 		red, black := redBlack(sys.Nodes, g.NX)
-		sor := &SOR{Omega: OptimalOmega(g.NX-1, g.NY-1), Red: red, Black: black}
+		omega := OptimalOmegaChannel(g.NX - 1)
+		if sys.outer {
+			omega = OptimalOmega(g.NX-1, g.NY-1) // φ prescribed on the whole outer ring
+		}
+		sor := &SOR{Omega: omega, Red: red, Black: black}
 		a := sys.A.CSR() // SOR walks CSR rows
 		solve = func(x []float64) (Stats, error) { return sor.Solve(ctx, a, sys.B, x, set) }
 	default:

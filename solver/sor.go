@@ -197,6 +197,24 @@ func OptimalOmega(nx, ny int) float64 {
 	return 2 / (1 + math.Sqrt(oneMinus*(2-oneMinus)))
 }
 
+// OptimalOmegaChannel is OptimalOmega for the φ problem of a channel nx cells long: the value
+// is prescribed at the outlet only, and the inlet, the walls and the bodies carry a flux. The
+// slowest Jacobi mode is then a quarter sine along the channel and constant across it, so
+//
+//	1 − ρ_J = (1 − cos(π/2nx)) / 2 = sin²(π/4nx),
+//
+// (the one-dimensional mixed Dirichlet–Neumann spectrum, Varga 1962, ch. 4, with the Neumann
+// direction's lowest mode 0) and ω = 2 / (1 + √(1 − ρ_J²)). The Dirichlet rectangle's ω would
+// relax such a problem several times too weakly. It panics if nx is below 2.
+func OptimalOmegaChannel(nx int) float64 {
+	if nx < 2 {
+		panic(fmt.Sprintf("solver: OptimalOmegaChannel: nx must be >= 2, got %d", nx))
+	}
+	sx := math.Sin(math.Pi / float64(4*nx))
+	oneMinus := sx * sx
+	return 2 / (1 + math.Sqrt(oneMinus*(2-oneMinus)))
+}
+
 // RedBlack splits the rows of a into two colours such that no entry A_ij ≠ 0 with i ≠ j joins
 // rows of one colour (in either direction), for use as SOR.Red and SOR.Black. In each connected
 // group of rows the lowest-numbered row is red. It returns an error if no such split exists (the
