@@ -215,7 +215,7 @@ func compute(ctx context.Context, plan *scenario.Plan, o *runOptions, stderr io.
 	if err := ctx.Err(); err != nil {
 		return nil, err
 	}
-	mismatch, err := flow.Mismatch(res, phiSol)
+	mismatch, err := flow.MismatchAt(res, phiSol)
 	if err != nil {
 		return nil, err
 	}

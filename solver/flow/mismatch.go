@@ -203,16 +203,30 @@ const MismatchDistance = 2
 // the mismatch falls like H² and measures the discretisation error of the two solutions. It fails
 // if phi was solved on another grid or no node is far enough from the boundaries.
 func Mismatch(r *Result, phi *solver.PhiSolution) (float64, error) {
+	w, err := MismatchAt(r, phi)
+	return w.Value, err
+}
+
+// WorstMismatch is the largest φ/ψ velocity mismatch of a run and where it lies.
+type WorstMismatch struct {
+	Value float64    // |V_φ − V_ψ| / U
+	At    mesh.Point // the node (the first in node order with that value)
+	Near  string     // the name of the wall or body nearest to At
+}
+
+// MismatchAt is Mismatch with where the largest mismatch lies.
+func MismatchAt(r *Result, phi *solver.PhiSolution) (WorstMismatch, error) {
 	m := r.Sol.Sys.Mesh
 	if phi.Sys.Mesh.Grid != m.Grid {
-		return 0, fmt.Errorf("flow: φ was solved on a %d×%d grid, ψ on %d×%d", phi.Sys.Mesh.NX, phi.Sys.Mesh.NY, m.NX, m.NY)
+		return WorstMismatch{}, fmt.Errorf("flow: φ was solved on a %d×%d grid, ψ on %d×%d", phi.Sys.Mesh.NX, phi.Sys.Mesh.NY, m.NX, m.NY)
 	}
 	away := awayFromBoundaries(m, MismatchDistance)
 	g := m.Grid
 	nr := par.Ranges(g.NY, parallelRows)
-	worsts, counts := make([]float64, nr), make([]int, nr)
+	worsts, where, counts := make([]float64, nr), make([]int, nr), make([]int, nr)
 	par.Rows(g.NY, parallelRows, func(r0, j0, j1 int) {
 		pn := phiNodes{sol: phi, g: g}
+		where[r0] = -1
 		for k := j0 * g.NX; k < j1*g.NX; k++ {
 			if !away[k] || !r.Field.Valid[k] {
 				continue
@@ -222,19 +236,37 @@ func Mismatch(r *Result, phi *solver.PhiSolution) (float64, error) {
 				continue
 			}
 			counts[r0]++
-			d := math.Hypot(u-r.Field.U[k], v-r.Field.V[k]) / r.Speed
-			worsts[r0] = math.Max(worsts[r0], d)
+			if d := math.Hypot(u-r.Field.U[k], v-r.Field.V[k]) / r.Speed; d > worsts[r0] || where[r0] < 0 {
+				worsts[r0], where[r0] = d, k
+			}
 		}
 	})
-	worst, count := 0.0, 0
+	worst, at, count := 0.0, -1, 0
 	for q := range nr {
-		worst = math.Max(worst, worsts[q])
+		if where[q] >= 0 && (at < 0 || worsts[q] > worst) {
+			worst, at = worsts[q], where[q]
+		}
 		count += counts[q]
 	}
 	if count == 0 {
-		return 0, fmt.Errorf("flow: no fluid node lies %d spacings from every boundary; refine the grid", MismatchDistance)
+		return WorstMismatch{}, fmt.Errorf("flow: no fluid node lies %d spacings from every boundary; refine the grid", MismatchDistance)
 	}
-	return worst, nil
+	p := g.At(at%g.NX, at/g.NX)
+	return WorstMismatch{Value: worst, At: p, Near: nearestBoundary(m, p)}, nil
+}
+
+// nearestBoundary returns the name of the wall or body nearest to p, measured to their samples
+// at spacing H.
+func nearestBoundary(m *mesh.Mesh, p mesh.Point) string {
+	best, name := math.Inf(1), ""
+	for id := range m.NumBoundaries() {
+		for _, sp := range m.Sample(id, m.H) {
+			if d := sp.P.Sub(p).Norm(); d < best {
+				best, name = d, m.BoundaryName(id)
+			}
+		}
+	}
+	return name
 }
 
 // awayFromBoundaries marks the fluid nodes at least dist·H from the inlet, the outlet and every

@@ -104,7 +104,7 @@ func solveInput(t testing.TB, file string, edit func(string) string) (Input, *me
 	if err != nil {
 		t.Fatal(err)
 	}
-	mismatch, err := flow.Mismatch(res, phi)
+	mismatch, err := flow.MismatchAt(res, phi)
 	if err != nil {
 		t.Fatal(err)
 	}
