@@ -331,7 +331,7 @@ func NewSummary(in Input) (*Summary, error) {
 		}
 	}
 	if w := in.Mismatch; w != nil && w.Value > MismatchWarn {
-		s.warnf("the velocities from φ and from ψ differ by %.1f %% of the inlet speed at (%.4g, %.4g) m, near %s: the grid resolves the flow there poorly (sharp edges need finer cells); refine the grid before relying on local speeds and pressures near it",
+		s.warnf("the velocities from φ and from ψ differ by %.1f %% of the inlet speed at (%.4g, %.4g) m, near %s: the grid resolves the flow there poorly (sharp edges and tight curves need finer cells); refine the grid before relying on local speeds and pressures near it",
 			100*w.Value, w.At.X, w.At.Y, w.Near)
 	}
 	return s, s.check()
