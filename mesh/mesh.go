@@ -131,17 +131,21 @@ func Build(geo *Geometry, g Grid) (*Mesh, error) {
 // classify sets Kind and Owner from the walls and bodies.
 func (m *Mesh) classify() {
 	g := m.Grid
-	for i := 0; i < g.NX; i++ {
+	// The walls' heights per column first, then the nodes row by row, in memory order.
+	lowHi, upLo := make([]float64, g.NX), make([]float64, g.NX)
+	for i := range g.NX {
 		x := g.X(i)
-		_, lowHi := m.Geom.Lower.Range(x)
-		upLo, _ := m.Geom.Upper.Range(x)
-		for j := 0; j < g.NY; j++ {
+		_, lowHi[i] = m.Geom.Lower.Range(x)
+		upLo[i], _ = m.Geom.Upper.Range(x)
+	}
+	for j := 0; j < g.NY; j++ {
+		y := g.Y(j)
+		for i := 0; i < g.NX; i++ {
 			k := g.Index(i, j)
-			y := g.Y(j)
 			switch {
-			case y <= lowHi:
+			case y <= lowHi[i]:
 				m.Kind[k], m.Owner[k] = Outside, LowerWall
-			case y >= upLo:
+			case y >= upLo[i]:
 				m.Kind[k], m.Owner[k] = Outside, UpperWall
 			default:
 				m.Kind[k], m.Owner[k] = Fluid, NoBoundary
@@ -267,6 +271,17 @@ func (m *Mesh) arms(cuts map[int64]*linkCut) {
 	for k := range m.cutIdx {
 		m.cutIdx[k] = -1
 	}
+	// Most links cross nothing: a bit per link tells which to look up in the map.
+	crossed := make([]uint64, (2*g.Len()+63)/64)
+	for key := range cuts {
+		crossed[key>>6] |= 1 << (key & 63)
+	}
+	lookup := func(key int64) *linkCut {
+		if crossed[key>>6]&(1<<(key&63)) == 0 {
+			return nil
+		}
+		return cuts[key]
+	}
 	type nb struct{ di, dj, dir int }
 	dirs := [4]nb{{1, 0, East}, {-1, 0, West}, {0, 1, North}, {0, -1, South}}
 	for j := 0; j < g.NY; j++ {
@@ -287,9 +302,9 @@ func (m *Mesh) arms(cuts map[int64]*linkCut) {
 				var c *linkCut
 				forward := d.di+d.dj > 0
 				if forward {
-					c = cuts[linkKey(k, d.dj)]
+					c = lookup(linkKey(k, d.dj))
 				} else {
-					c = cuts[linkKey(g.Index(ni, nj), -d.dj)]
+					c = lookup(linkKey(g.Index(ni, nj), -d.dj))
 				}
 				if c != nil {
 					if forward {
