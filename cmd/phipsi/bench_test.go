@@ -12,7 +12,7 @@ import (
 
 // benchChannel is a one-body channel of about n cells with no pictures: the case whose whole run
 // the speed work measures against a direct solver (solver/peer_test.go).
-func benchChannel(b *testing.B, cells int) string {
+func benchChannel(b testing.TB, cells int) string {
 	b.Helper()
 	// 6 × 1 channel: (6/h)(1/h) = cells.
 	h := 1 / math.Sqrt(float64(cells)/6)

@@ -20,7 +20,8 @@ const pageSize = 4096
 // it, starting goroutines costs more than the faults they share.
 const minParallel = 4 << 20
 
-// Touch writes the zero value into one element of every page of v[:cap(v)], from up to
+// Touch maps the pages of v[:cap(v)] (asking the kernel to map each goroutine's share in one
+// call, where it can) and writes the zero value into one element of every page, from up to
 // GOMAXPROCS goroutines. v must hold only zero values (a new slice), which it keeps.
 func Touch[T any](v []T) {
 	v = v[:cap(v)]
@@ -32,15 +33,26 @@ func Touch[T any](v []T) {
 	step := max(1, pageSize/size)
 	nw := min(runtime.GOMAXPROCS(0), len(v)*size/minParallel)
 	if nw <= 1 {
+		populateRange(v, size)
 		touchRange(v, step)
 		return
 	}
 	var wg sync.WaitGroup
 	for w := range nw {
 		lo, hi := w*len(v)/nw, (w+1)*len(v)/nw
-		wg.Go(func() { touchRange(v[lo:hi], step) })
+		wg.Go(func() {
+			populateRange(v[lo:hi], size)
+			touchRange(v[lo:hi], step)
+		})
 	}
 	wg.Wait()
+}
+
+// populateRange maps the pages of v, of elements of size bytes, in one call where the kernel can.
+func populateRange[T any](v []T, size int) {
+	if len(v) > 0 {
+		populate(unsafe.Pointer(&v[0]), len(v)*size)
+	}
 }
 
 func touchRange[T any](v []T, step int) {
