@@ -35,6 +35,8 @@ type GridMatrix struct {
 	restCol  []int32
 	restVal  []float64
 	restDiag []float64
+	// runs cuts the unknowns into stretches of one grid row (see gridRun), in order.
+	runs []gridRun
 }
 
 // NewGridMatrix stores a, a matrix on the unknowns of grid g, as a GridMatrix. nodes maps each
@@ -51,6 +53,7 @@ func NewGridMatrix(a *CSR, g mesh.Grid, nodes, unknown []int32) *GridMatrix {
 		lo, hi := a.RowPtr[u], a.RowPtr[u+1]
 		s.setRow(u, a.Col[lo:hi], a.Val[lo:hi])
 	}
+	s.findRuns()
 	return s
 }
 
@@ -108,6 +111,7 @@ func (b *GridBuilder) Matrix() *GridMatrix {
 		panic(fmt.Sprintf("solver: GridBuilder.Matrix: %d of %d rows ended", b.row, b.m.N))
 	}
 	b.done = true
+	b.m.findRuns()
 	return b.m
 }
 
@@ -191,6 +195,7 @@ func buildRows(g mesh.Grid, nodes, unknown []int32, nr int, row func(b *GridBuil
 		m.restVal = append(m.restVal, part.restVal...)
 		m.restDiag = append(m.restDiag, part.restDiag...)
 	}
+	m.findRuns()
 	return m, nil
 }
 
@@ -254,7 +259,7 @@ func (s *GridMatrix) Plain() int { return s.N - (len(s.restPtr) - 1) }
 
 // Bytes returns the memory the GridMatrix holds itself, without the node maps it shares.
 func (s *GridMatrix) Bytes() int {
-	return 12*len(s.plain) + 8*len(s.restPtr) + 12*len(s.restCol) + 8*len(s.restDiag)
+	return 12*len(s.plain) + 8*len(s.restPtr) + 12*len(s.restCol) + 8*len(s.restDiag) + 16*len(s.runs)
 }
 
 // Row returns the columns and values of row u, ascending by column. A plain row is written into
@@ -333,12 +338,27 @@ func (s *GridMatrix) ResidualTo(dst, b, x []float64) {
 // so both forms of a matrix give the same products bit for bit (the products by ±1 and 4 are
 // exact). Every kernel forms its products here and then uses them while they are in cache.
 func (s *GridMatrix) productTo(out, x []float64, lo, hi int) {
+	out = out[:hi-lo]
+	for r, u := s.runAt(lo), lo; u < hi; r++ {
+		run := s.runs[r]
+		end := min(hi, int(run.u0+run.n))
+		if run.south == mixedRun {
+			s.mixedProduct(out[u-lo:end-lo], x, u)
+		} else {
+			plainProduct(out[u-lo:end-lo], x, u, int(run.south), int(run.north))
+		}
+		u = end
+	}
+}
+
+// mixedProduct writes (A x)_u for rows u0 ≤ u < u0+len(out), of any kind, into out.
+func (s *GridMatrix) mixedProduct(out, x []float64, u0 int) {
 	nx := s.grid.NX
-	nodes := s.nodes[lo:hi]
+	nodes := s.nodes[u0 : u0+len(out)]
 	out = out[:len(nodes)]
 	unknown := s.unknown
 	for q := range out {
-		u := lo + q
+		u := u0 + q
 		if s.plain[u>>6]&(1<<(u&63)) == 0 {
 			out[q] = s.restDot(s.other(u), x)
 			continue

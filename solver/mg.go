@@ -333,17 +333,23 @@ func (mg *Multigrid) smoothFine(pre bool) {
 	}
 }
 
-// smoothGrid runs the smoothing sweeps of coarse level lv.
+// smoothGrid runs the smoothing sweeps of coarse level lv, each as two half-sweeps over the rows
+// of one parity (see gridLevel.runBlock): colours 0, 1 then 2, 3 (the even rows, then the odd
+// ones), or in a symmetric V-cycle after the correction 3, 2 then 1, 0.
 func (mg *Multigrid) smoothGrid(lv *gridLevel, pre bool) {
 	for sweep := range mg.smooth {
-		for s := range 4 {
-			c := mg.sweepColour(s, 4, pre)
-			if pre && sweep == 0 && s == 0 {
-				mg.runGrid(lv, gridInit, c)
-				continue
-			}
-			mg.runGrid(lv, gridSmooth, c)
+		if pre && sweep == 0 {
+			mg.runGrid(lv, gridInit, 0)
+			mg.runGrid(lv, gridSmooth, 1) // odd rows, even i first
+			continue
 		}
+		if pre || !mg.symmetric {
+			mg.runGrid(lv, gridSmooth, 0) // even rows, even i first
+			mg.runGrid(lv, gridSmooth, 1)
+			continue
+		}
+		mg.runGrid(lv, gridSmooth, 1|2) // odd rows, odd i first
+		mg.runGrid(lv, gridSmooth, 0|2)
 	}
 }
 

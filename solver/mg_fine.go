@@ -24,6 +24,7 @@ type fineLevel struct {
 	nx, ny   int
 	nodes    []int32
 	rowStart []int32 // the unknowns of grid row j are rowStart[j] ≤ u < rowStart[j+1]
+	rowRun   []int32 // the runs of grid row j are a.runs[rowRun[j]:rowRun[j+1]]
 	// meta holds each unknown's smoothing colour.
 	meta    []uint8
 	ncolour int // 2 (red–black) or 4
@@ -110,6 +111,14 @@ func newFineLevel(a *GridMatrix, g mesh.Grid, nodes []int32) (*fineLevel, error)
 			}
 		}
 	}
+	f.rowRun = make([]int32, ny+1)
+	r := 0
+	for j := range ny + 1 {
+		for r < len(a.runs) && int(nodes[a.runs[r].u0])/nx < j {
+			r++
+		}
+		f.rowRun[j] = int32(r)
+	}
 	f.r = pages.Make[float64](f.stride * (ny + 3))
 	f.blockRows = blockRowsFor(nx)
 	f.nblocks = ceilDiv(ny, f.blockRows)
@@ -134,12 +143,11 @@ func (f *fineLevel) runBlock(blk int) {
 		return
 	}
 	j0, j1 := f.rows(blk)
-	lo, hi := int(f.rowStart[j0]), int(f.rowStart[j1])
 	switch f.op {
 	case fineInit:
-		f.initRange(lo, hi, f.c)
+		f.initRows(j0, j1, f.c)
 	case fineSmooth:
-		f.smoothRange(lo, hi, f.c)
+		f.smoothRows(j0, j1, f.c)
 	case fineResidual:
 		for j := j0; j < j1; j++ {
 			f.residualRow(j, f.c)
@@ -211,20 +219,38 @@ func (f *fineLevel) finishPipeline() {
 
 // stage runs stage k of the current fused kernel on row j.
 func (f *fineLevel) stage(k, j int) {
-	lo, hi := int(f.rowStart[j]), int(f.rowStart[j+1])
 	switch {
 	case f.op == finePre && k == 0:
-		f.initRange(lo, hi, 0)
+		f.initRows(j, j+1, 0)
 	case f.op == finePre && k == 1:
-		f.smoothRange(lo, hi, 1)
+		f.smoothRows(j, j+1, 1)
 	case f.op == finePre:
 		f.residualRow(j, 1)
 	case k == 0:
 		f.prolongRow(j)
 	case k == 1:
-		f.smoothRange(lo, hi, f.c)
+		f.smoothRows(j, j+1, f.c)
 	default:
-		f.smoothRange(lo, hi, 1-f.c)
+		f.smoothRows(j, j+1, 1-f.c)
+	}
+}
+
+// initRows sets x_u = b_u / A_uu on the unknowns of colour c in grid rows [j0, j1) and x_u = 0
+// on the others (initRange on rows that are not in plain runs).
+func (f *fineLevel) initRows(j0, j1, c int) {
+	for _, run := range f.a.runs[f.rowRun[j0]:f.rowRun[j1]] {
+		u0, n := int(run.u0), int(run.n)
+		if run.south == mixedRun || f.ncolour != 2 {
+			f.initRange(u0, u0+n, c)
+			continue
+		}
+		x := f.x[u0 : u0+n]
+		b := f.b[u0 : u0+n]
+		b = b[:len(x)]
+		clear(x)
+		for q := uint(int(f.meta[u0])^c) & 1; q < uint(len(x)); q += 2 {
+			x[q] = b[q] / 4
+		}
 	}
 }
 
@@ -242,6 +268,26 @@ func (f *fineLevel) initRange(lo, hi, c int) {
 			continue
 		}
 		x[q] = b[q] / a.Diag(lo+q)
+	}
+}
+
+// smoothRows updates the unknowns of colour c in grid rows [j0, j1): the plain runs' by the
+// fixed stencil, the others by smoothRange.
+func (f *fineLevel) smoothRows(j0, j1, c int) {
+	for _, run := range f.a.runs[f.rowRun[j0]:f.rowRun[j1]] {
+		u0, n := int(run.u0), int(run.n)
+		if run.south == mixedRun || f.ncolour != 2 {
+			f.smoothRange(u0, u0+n, c)
+			continue
+		}
+		xs, xw, xm, xe, xn := stencilSlices(f.x, u0, n, int(run.south), int(run.north))
+		b := f.b[u0 : u0+n]
+		xs, xw, xe, xn, b = xs[:len(xm)], xw[:len(xm)], xe[:len(xm)], xn[:len(xm)], b[:len(xm)]
+		// Colours alternate along the run.
+		for q := uint(int(f.meta[u0])^c) & 1; q < uint(len(xm)); q += 2 {
+			s := 0 - xs[q] - xw[q] + 4*xm[q] - xe[q] - xn[q]
+			xm[q] += (b[q] - s) / 4
+		}
 	}
 }
 
@@ -276,29 +322,46 @@ func (f *fineLevel) smoothRange(lo, hi, c int) {
 
 // residualRow writes r = b − A x for the unknowns of grid row j into the padded residual grid,
 // and 0 for the unknowns of the colour the smoothing updated last (their residual vanishes in
-// exact arithmetic). Unknowns that share a node share their P row, so the node holds the sum of
-// their residuals, which is what restriction needs.
+// exact arithmetic): the plain runs by the fixed stencil, the others by residualRange.
 func (f *fineLevel) residualRow(j, skip int) {
-	a := f.a
-	lo, hi := int(f.rowStart[j]), int(f.rowStart[j+1])
-	if lo == hi {
-		return
+	off := (j+1)*f.stride + 1 - j*f.nx // padded index of node k is k + off
+	for _, run := range f.a.runs[f.rowRun[j]:f.rowRun[j+1]] {
+		u0, n := int(run.u0), int(run.n)
+		if run.south == mixedRun || f.ncolour != 2 {
+			f.residualRange(u0, u0+n, off, skip)
+			continue
+		}
+		k0 := int(f.nodes[u0]) + off // a plain run's nodes are consecutive
+		r := f.r[k0 : k0+n]
+		xs, xw, xm, xe, xn := stencilSlices(f.x, u0, n, int(run.south), int(run.north))
+		b := f.b[u0 : u0+n]
+		xs, xw, xm, xe, xn, b = xs[:len(r)], xw[:len(r)], xm[:len(r)], xe[:len(r)], xn[:len(r)], b[:len(r)]
+		for q := range r {
+			r[q] = b[q] - (0 - xs[q] - xw[q] + 4*xm[q] - xe[q] - xn[q])
+		}
+		for q := uint(int(f.meta[u0])^skip) & 1; q < uint(len(r)); q += 2 {
+			r[q] = 0
+		}
 	}
+}
+
+// residualRange writes the residual of unknowns [lo, hi) of one grid row, whose nodes have
+// padded index k + off, as residualRow does. Unknowns that share a node share their P row, so
+// the node holds the sum of their residuals, which is what restriction needs; such unknowns are
+// never in a plain run, so they all lie in one range.
+func (f *fineLevel) residualRange(lo, hi, off, skip int) {
+	a := f.a
 	var buf [blockRows]float64
 	nodes := f.nodes[lo:hi]
 	b := f.b[lo:hi]
 	meta := f.meta[lo:hi]
 	b, meta = b[:len(nodes)], meta[:len(nodes)]
 	r := f.r
-	off := (j+1)*f.stride + 1 - j*f.nx // padded index of node k is k + off
+	prev := int32(-1)
 	for start := 0; start < len(nodes); start += blockRows {
 		end := min(start+blockRows, len(nodes))
 		ax := buf[:end-start]
 		a.productTo(ax, f.x, lo+start, lo+end)
-		prev := int32(-1)
-		if start > 0 {
-			prev = nodes[start-1]
-		}
 		for q := start; q < end; q++ {
 			k := int(nodes[q]) + off
 			if int(meta[q]) == skip {

@@ -8,8 +8,8 @@ import (
 
 // Kernels of a coarse level, run block by block by gridLevel.runBlock.
 const (
-	gridInit     = iota // first step of a V-cycle from x = 0: x = b/A_kk on colour c, 0 elsewhere
-	gridSmooth          // Gauss–Seidel update of the nodes of colour c
+	gridInit     = iota // the first half-sweep of a V-cycle, from x = 0 (see gridLevel.runBlock)
+	gridSmooth          // a half-sweep: Gauss–Seidel on the rows of one parity (see runBlock)
 	gridResidual        // r = b − A x on every node and zeros on the padding
 	gridRestrict        // b = Pᵀ r_fine from the level above
 	gridProlong         // x += P x_coarse from the level below
@@ -75,14 +75,24 @@ func (lv *gridLevel) rows(blk int) (j0, j1 int) {
 func (lv *gridLevel) runBlock(blk int) {
 	j0, j1 := lv.rows(blk)
 	switch lv.op {
+	// Colour c holds the nodes with i ≡ c mod 2 and j ≡ c/2 mod 2. A nine-point row couples a
+	// node only to rows j − 1, j, j + 1, so the two colours of one row parity depend on each other
+	// but on none of the same parity's other rows: a Gauss–Seidel sweep in the colour order
+	// 0, 1, 2, 3 is the even rows (nodes of even i, then odd i) followed by the odd rows, each
+	// half-sweep a pass over its rows in any row order and the same bits as four colour passes.
+	// Reversed (3, 2, 1, 0) it is the odd rows (odd i, then even i), then the even rows. Each
+	// row's stencils are read once per sweep while they are in cache, instead of once per colour.
 	case gridInit:
+		// Colours 0 and 1 from x = 0: every odd row is 0, and the even rows' odd nodes see only
+		// their own row's even nodes.
 		for j := j0; j < j1; j++ {
 			lv.initRow(j)
 		}
 	case gridSmooth:
-		// Colour c holds the nodes with i ≡ c mod 2 and j ≡ c/2 mod 2.
-		for j := j0 + (j0^(lv.c>>1))&1; j < j1; j += 2 {
-			lv.smoothRow(j, lv.c&1)
+		// Rows j ≡ c mod 2, nodes i ≡ c/2 mod 2 first, then the others.
+		for j := j0 + (j0^lv.c)&1; j < j1; j += 2 {
+			lv.smoothRow(j, lv.c>>1)
+			lv.smoothRow(j, 1-lv.c>>1)
 		}
 	case gridResidual:
 		if blk == 0 {
@@ -105,19 +115,35 @@ func (lv *gridLevel) runBlock(blk int) {
 	}
 }
 
-// initRow sets x = b/A_kk on the nodes of colour c in row j and x = 0 on the others.
+// initRow runs the first half-sweep of a V-cycle on row j, from x = 0: colour 0 (even i, even j)
+// takes x = b/A_kk, colour 1 (odd i, even j) its Gauss–Seidel update from the row's colour-0
+// values, and the odd rows 0. The update omits the terms of rows j ± 1, which are zero; their
+// sums are ±0, which leave the sum of the row's own terms unchanged, so the bits are those of
+// the full stencil.
 func (lv *gridLevel) initRow(j int) {
 	row := (j+1)*lv.sx + 1
 	x := lv.x[row : row+lv.nx]
 	clear(x)
-	if j&1 != lv.c>>1 {
+	if j&1 != 0 {
 		return
 	}
 	b := lv.b[row : row+lv.nx]
 	inv := lv.invD[row : row+lv.nx]
 	b, inv = b[:len(x)], inv[:len(x)]
-	for i := uint(lv.c & 1); i < uint(len(x)); i += 2 {
+	for i := 0; i < len(x); i += 2 {
 		x[i] = b[i] * inv[i]
+	}
+	st := lv.st[row : row+lv.nx]
+	c := lv.x[row-1 : row-1+lv.nx] // c[i] = x[i−1], c[i+2] = x[i+1]
+	st, c = st[:len(x)], c[:len(x)]
+	for i := uint(1); i < uint(len(x)); i += 2 {
+		s := &st[i]
+		var e float64
+		if i+1 < uint(len(x)) {
+			e = x[i+1]
+		}
+		t := float64(s[3])*c[i] + float64(s[5])*e
+		x[i] = (b[i] - t) * inv[i]
 	}
 }
 
