@@ -244,3 +244,41 @@ func TestMismatchFoil(t *testing.T) {
 		t.Errorf("mismatch 8H from the boundaries %.3f %%, want ≤ %g %%", 100*far, 100*tol)
 	}
 }
+
+// TestVelocityFastSameBits checks that the mismatch's direct central differences give the bits of
+// the general φ velocity at every node they are used for, on a lifting foil whose branch cut
+// crosses the grid (so that the rows and columns beside the cut take the general path).
+func TestVelocityFastSameBits(t *testing.T) {
+	foil, err := mesh.NACA4("2412", 0.4, mesh.Point{X: 1.6, Y: 0.52}, 4*math.Pi/180, 100)
+	if err != nil {
+		t.Fatal(err)
+	}
+	r := crSolve(t, 4, wall(0, 0, 4, 0), wall(0, 1, 4, 1), false, 0.02, 1, []mesh.Body{{Name: "foil", Shape: foil}}, []bc.Body{{Kutta: true}})
+	if len(r.phi.Sys.Cuts) != 1 {
+		t.Fatalf("%d cuts, want 1", len(r.phi.Sys.Cuts))
+	}
+	c := r.phi.Sys.Cuts[0]
+	g := r.mesh.Grid
+	pn := phiNodes{sol: r.phi, g: g}
+	fast := 0
+	for j := range g.NY {
+		for i := range g.NX {
+			uncut := j != c.Row && j != c.Row+1 && i != c.Col && i != c.Col+1
+			u, v, ok := pn.velocity(i, j)
+			fu, fv, fok := pn.velocityFast(i, j, uncut)
+			if ok != fok || math.Float64bits(u) != math.Float64bits(fu) || math.Float64bits(v) != math.Float64bits(fv) {
+				t.Fatalf("node (%d, %d): fast (%v, %v, %v), general (%v, %v, %v)", i, j, fu, fv, fok, u, v, ok)
+			}
+			if uncut && ok {
+				fast++
+			}
+		}
+	}
+	if fast < g.Len()/2 {
+		t.Errorf("only %d of %d nodes took the direct path", fast, g.Len())
+	}
+	// The cut must change φ's differences across it: its row's nodes are not all continuous.
+	if c.Circulation == 0 {
+		t.Errorf("the Kutta foil has no circulation")
+	}
+}
