@@ -102,17 +102,33 @@ func (f *Faces) Segment(face int) (a, b Point) {
 	return Point{math.Max(g.X0, g.X(i)-h/2), y}, Point{math.Min(g.X(g.NX-1), g.X(i)+h/2), y}
 }
 
+// span returns the along-face coordinates of the ends of face number face: Segment's y (east
+// and inlet faces) or x (north faces) coordinates, with the same bits.
+func (f *Faces) span(face int) (lo, hi float64) {
+	g := f.Grid
+	n := g.Len()
+	if face >= 2*n || face%2 == 0 {
+		a, b := f.Segment(face)
+		return a.Y, b.Y
+	}
+	k := face / 2
+	i := k % g.NX
+	if i == 0 || i == g.NX-1 {
+		a, b := f.Segment(face)
+		return a.X, b.X
+	}
+	// Inside the first and last columns the clamps of Segment do not bind.
+	x := g.X(i)
+	return x - g.H/2, x + g.H/2
+}
+
 // Parts appends the open parts of face number face to dst, in increasing A.
 func (f *Faces) Parts(dst []FacePart, face int) []FacePart {
 	switch s := f.state[face]; s {
 	case faceClosed:
 		return dst
 	case faceOpen:
-		a, b := f.Segment(face)
-		lo, hi := a.Y, b.Y
-		if face < 2*f.Len() && face%2 == 1 {
-			lo, hi = a.X, b.X
-		}
+		lo, hi := f.span(face)
 		low := uint8(0)
 		if face >= 2*f.Len() {
 			low = NoPiece
@@ -123,6 +139,10 @@ func (f *Faces) Parts(dst []FacePart, face int) []FacePart {
 		return append(dst, f.parts[sp.start:sp.start+sp.n]...)
 	}
 }
+
+// Whole reports whether face number face is open over its whole length, with piece 0 on both
+// sides.
+func (f *Faces) Whole(face int) bool { return f.state[face] == faceOpen }
 
 // Fraction returns the length of part p of face number face over H. For a whole open face it is
 // exactly 1 (1/2 for the north faces of the first and last columns), not the rounded difference
