@@ -8,10 +8,6 @@ import "math"
 // the machines phipsi runs on, one core streams memory at about half the rate of two (STREAM
 // triad: 28 against 57 GB/s), and these kernels do nothing but stream.
 
-// krylovTeam runs the Krylov kernels of every workspace; its one helper waits, parked, between
-// runs. (Each Multigrid has a team of its own; the two never run at once.)
-var krylovTeam = newTeam()
-
 // krylovMinParallel is the vector length below which the kernels run on the calling goroutine:
 // under it, waking a helper costs more than the work.
 const krylovMinParallel = 32768
@@ -47,7 +43,7 @@ func (k *kernels) run(op, n int) (float64, float64) {
 		k.s1, k.s2 = make([]float64, nb), make([]float64, nb)
 	}
 	k.s1, k.s2 = k.s1[:nb], k.s2[:nb]
-	krylovTeam.run(k, nb, n < krylovMinParallel)
+	workTeam.run(k, nb, n < krylovMinParallel)
 	var s1, s2 float64
 	for b := range nb {
 		s1 += k.s1[b]

@@ -71,8 +71,7 @@ type MGOptions struct {
 // and is not affected.
 //
 // Work. Every kernel walks fixed blocks of grid rows, shared among min(GOMAXPROCS, blocks)
-// goroutines that the Multigrid starts on first use and stops when it is garbage collected; no
-// kernel reduces across blocks, so results are bit-identical for any number of threads. All
+// goroutines of the package's worker team; no kernel reduces across blocks, so results are bit-identical for any number of threads. All
 // memory is allocated by NewMultigrid (about 32 bytes per fine grid node); PreconSolve allocates
 // nothing.
 //
@@ -166,7 +165,7 @@ func NewMultigrid(a Operator, g mesh.Grid, nodes []int32, o MGOptions) (*Multigr
 		n:           gm.N,
 		smooth:      o.Smooth,
 		symmetric:   o.Symmetric,
-		team:        newTeam(),
+		team:        workTeam,
 		minParallel: mgMinParallel,
 	}
 	if mg.smooth == 0 {
@@ -176,8 +175,6 @@ func NewMultigrid(a Operator, g mesh.Grid, nodes []int32, o MGOptions) (*Multigr
 	if coarsest == 0 {
 		coarsest = DefaultMGCoarsest
 	}
-	runtime.AddCleanup(mg, func(t *team) { t.stop() }, mg.team)
-
 	if gm.N == 0 {
 		return mg, nil
 	}

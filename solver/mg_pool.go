@@ -3,6 +3,8 @@ package solver
 import (
 	"runtime"
 	"sync"
+	"sync/atomic"
+	"time"
 )
 
 // blockTask is a kernel split into numbered blocks of work. The blocks of one run write disjoint
@@ -15,28 +17,43 @@ type blockTask interface {
 // maxTeamWorkers bounds the goroutines a team starts, however large GOMAXPROCS is.
 const maxTeamWorkers = 64
 
+// teamSpin is how long a helper keeps watching for the next run before it parks. A V-cycle
+// runs a parallel kernel every few hundred microseconds, with the small coarse levels' serial
+// work in between; a parked helper takes tens of microseconds or more to wake on these machines
+// (measured: with helpers that parked at once, one V-cycle at 1M unknowns took as long on two
+// goroutines as on one, 12 ms).
+const teamSpin = 200 * time.Microsecond
+
 // team runs block kernels on the calling goroutine and on helper goroutines that it starts on
-// first need and keeps for later runs, so that a run allocates nothing. A run uses
-// min(GOMAXPROCS, blocks) goroutines; block b goes to goroutine b mod that number. Blocks never
-// share a reduction, so the result does not depend on how many goroutines there are.
+// first need and keeps, so that a run allocates nothing. A run uses min(GOMAXPROCS, blocks)
+// goroutines; block b goes to goroutine b mod that number. Blocks never share a reduction, so the
+// result does not depend on how many goroutines there are.
 //
-// Between runs the team holds no reference to the task, so the owner of a team can become
-// unreachable while the helpers wait; the owner stops them with stop (Multigrid does so from a
-// cleanup when it is collected).
+// A helper watches for the next run for teamSpin after each one (yielding its thread to any other
+// goroutine that is ready), then parks until woken. Between runs the team holds no reference to
+// the task. One team serves the whole package (workTeam): runs from several goroutines take
+// turns.
 type team struct {
-	mu      sync.Mutex      // held during a run: a team runs one task at a time
-	wake    []chan struct{} // one per helper; closed by stop
-	done    chan struct{}
+	mu      sync.Mutex // held during a run: a team runs one task at a time
+	helpers []*teamHelper
 	task    blockTask // the current run's task, nil between runs
 	nblocks int
-	nw      int // goroutines taking part in the current run, the caller included
-	stopped bool
+	nw      int           // goroutines taking blocks in the current run, the caller included
+	gen     atomic.Uint64 // number of runs started; helpers watch it
+	pending atomic.Int32  // helpers that have not finished the current run
 }
 
-// newTeam returns a team with no helpers started yet.
-func newTeam() *team {
-	return &team{done: make(chan struct{}, maxTeamWorkers)}
+// teamHelper is one helper goroutine's parking place.
+type teamHelper struct {
+	wake   chan struct{} // holds at most one token
+	parked atomic.Bool   // set by the helper before it waits on wake
 }
+
+// workTeam runs the parallel kernels of every Multigrid and Krylov workspace.
+var workTeam = newTeam()
+
+// newTeam returns a team with no helpers started yet.
+func newTeam() *team { return &team{} }
 
 // run calls task.runBlock(b) for every b in [0, nblocks) and returns when all have finished.
 // With serial set, or one goroutine allowed, it runs them in order on the calling goroutine.
@@ -53,20 +70,26 @@ func (t *team) run(task blockTask, nblocks int, serial bool) {
 	}
 	t.mu.Lock()
 	defer t.mu.Unlock()
-	for len(t.wake) < nw-1 && !t.stopped {
-		w := len(t.wake) + 1
-		ch := make(chan struct{})
-		t.wake = append(t.wake, ch)
-		go t.helper(w, ch)
+	for len(t.helpers) < nw-1 {
+		h := &teamHelper{wake: make(chan struct{}, 1)}
+		t.helpers = append(t.helpers, h)
+		go t.helper(len(t.helpers), h, t.gen.Load())
 	}
-	nw = min(nw, len(t.wake)+1)
+	// Every helper takes part in every run (those beyond nw with no blocks), so that none reads
+	// the fields of a run while the next is being set up.
 	t.task, t.nblocks, t.nw = task, nblocks, nw
-	for w := 1; w < nw; w++ {
-		t.wake[w-1] <- struct{}{}
+	t.pending.Store(int32(len(t.helpers)))
+	t.gen.Add(1)
+	for _, h := range t.helpers {
+		if h.parked.Swap(false) {
+			h.wake <- struct{}{}
+		}
 	}
 	t.work(0)
-	for w := 1; w < nw; w++ {
-		<-t.done
+	for spins := 0; t.pending.Load() != 0; spins++ {
+		if spins >= 64 {
+			runtime.Gosched()
+		}
 	}
 	t.task = nil
 }
@@ -78,21 +101,41 @@ func (t *team) work(w int) {
 	}
 }
 
-// helper is the loop of helper goroutine w: one share of a run per wake-up, until wake closes.
-func (t *team) helper(w int, wake chan struct{}) {
-	for range wake {
-		t.work(w)
-		t.done <- struct{}{}
+// helper is the loop of helper goroutine w; seen is the number of runs started before it.
+func (t *team) helper(w int, h *teamHelper, seen uint64) {
+	for {
+		seen = t.await(h, seen)
+		if w < t.nw {
+			t.work(w)
+		}
+		t.pending.Add(-1)
 	}
 }
 
-// stop ends the helper goroutines. The team must not be used afterwards.
-func (t *team) stop() {
-	t.mu.Lock()
-	defer t.mu.Unlock()
-	t.stopped = true
-	for _, ch := range t.wake {
-		close(ch)
+// await returns the number of runs started once it exceeds seen: watching for teamSpin, then
+// parked. A runner that finds the helper parked clears the flag and sends one token; a helper
+// that sees the new run after setting the flag takes the flag back, or, if the runner took it
+// first, the token.
+func (t *team) await(h *teamHelper, seen uint64) uint64 {
+	start := time.Now()
+	for spins := 0; ; spins++ {
+		if g := t.gen.Load(); g != seen {
+			return g
+		}
+		if spins%64 == 63 {
+			if time.Since(start) > teamSpin {
+				break
+			}
+			runtime.Gosched()
+		}
 	}
-	t.wake = nil
+	h.parked.Store(true)
+	if g := t.gen.Load(); g != seen {
+		if !h.parked.Swap(false) {
+			<-h.wake
+		}
+		return g
+	}
+	<-h.wake
+	return t.gen.Load()
 }

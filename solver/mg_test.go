@@ -6,6 +6,8 @@ import (
 	"math/rand/v2"
 	"runtime"
 	"slices"
+	"sync"
+	"sync/atomic"
 	"testing"
 	"time"
 
@@ -805,12 +807,12 @@ func TestMultigridNoAllocation(t *testing.T) {
 	}
 }
 
-// TestMultigridStopsHelpers checks that the goroutines a Multigrid starts end once it is
-// garbage: SolvePsi drops its hierarchy when it returns.
-func TestMultigridStopsHelpers(t *testing.T) {
+// TestMultigridSharesHelpers checks that hierarchies share the package's worker team: making and
+// using many of them starts no more than GOMAXPROCS − 1 helper goroutines in all.
+func TestMultigridSharesHelpers(t *testing.T) {
 	sys := mgPassageStep.psi(t, 4000)
 	defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(4))
-	before := runtime.NumGoroutine()
+	before := runtime.NumGoroutine() - len(workTeam.helpers)
 	live := make([]*Multigrid, 5)
 	for k := range live {
 		mg, err := NewMultigrid(sys.A, sys.Mesh.Grid, sys.Nodes, MGOptions{})
@@ -823,23 +825,43 @@ func TestMultigridStopsHelpers(t *testing.T) {
 		}
 		live[k] = mg
 	}
-	helpers := 0
-	for _, mg := range live {
-		helpers += len(mg.team.wake)
-	}
-	if n, want := runtime.NumGoroutine(), before+helpers; helpers < len(live) || n < want {
-		t.Fatalf("%d goroutines and %d helpers with the hierarchies alive, want at least %d and %d", n, helpers, want, len(live))
-	}
 	runtime.KeepAlive(live)
-	live = nil
-	for range 200 {
-		runtime.GC()
-		if runtime.NumGoroutine() <= before {
-			return
-		}
-		time.Sleep(5 * time.Millisecond)
+	if n := runtime.NumGoroutine(); n > before+3 {
+		t.Errorf("%d goroutines with 5 hierarchies used on 4 threads, want at most %d", n, before+3)
 	}
-	t.Errorf("%d goroutines a second after the hierarchies became garbage, want %d", runtime.NumGoroutine(), before)
+}
+
+// recordTask marks the blocks it runs.
+type recordTask struct{ hits []atomic.Int32 }
+
+func (r *recordTask) runBlock(b int) { r.hits[b].Add(1) }
+
+// TestTeamRunsEveryBlockOnce runs many tasks of varied sizes on a team, with pauses long enough
+// for the helpers to park between some of them, from two goroutines at once, and checks that
+// every block of every run ran exactly once before its run returned.
+func TestTeamRunsEveryBlockOnce(t *testing.T) {
+	defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(3))
+	tm := newTeam()
+	var wg sync.WaitGroup
+	for g := range 2 {
+		wg.Go(func() {
+			for r := range 300 {
+				nb := 1 + (r*7+g)%9
+				task := &recordTask{hits: make([]atomic.Int32, nb)}
+				tm.run(task, nb, false)
+				for b := range task.hits {
+					if n := task.hits[b].Load(); n != 1 {
+						t.Errorf("goroutine %d, run %d: block %d of %d ran %d times", g, r, b, nb, n)
+						return
+					}
+				}
+				if r%50 == 0 {
+					time.Sleep(2 * teamSpin) // let the helpers park
+				}
+			}
+		})
+	}
+	wg.Wait()
 }
 
 func TestMultigridSameBitsAnyThreads(t *testing.T) {
