@@ -204,7 +204,7 @@ func velocityRow(f *Field, sol *solver.PsiSolution, fl Fluid, j int,
 		nn, s := arms[mesh.North], arms[mesh.South]
 		dy := deriv(f0, value(i, j, mesh.North, nn), value(i, j, mesh.South, s), nn.Theta*h, s.Theta*h)
 		u, v := dy, -dx
-		sp := math.Hypot(u, v)
+		sp := math.Sqrt(u*u + v*v) // speeds are far from overflow: Hypot's scaling is not needed (and costs 24 ns against 11)
 		f.Valid[k] = true
 		f.U[k], f.V[k], f.Speed[k] = u, v, sp
 		f.Cp[k] = 1 - (sp/U)*(sp/U)
