@@ -6,6 +6,7 @@ import (
 	"slices"
 
 	"phipsi/internal/pages"
+	"phipsi/internal/par"
 )
 
 // Faces describes the dual cells of a mesh, for finite-volume schemes whose unknowns live at the
@@ -186,47 +187,72 @@ func NewFaces(m *Mesh) (*Faces, error) {
 	}
 	h := g.H
 	xa, xb := g.X0, g.X(g.NX-1)
-	var ivs [][2]float64
-	var buf []float64
-	var parts []FacePart
-	// Vertical lines: east faces of column i at x_i + H/2, and the inlet line.
-	for i := -1; i < g.NX-1; i++ {
-		x := g.X0
-		if i >= 0 {
-			x = g.X(i) + h/2
-		}
-		ylo, yhi := g.Y(0)-h/2, g.Y(g.NY-1)+h/2
-		ivs, buf = m.openIntervals(ivs[:0], buf[:0], true, x, ylo, yhi)
-		q := 0
-		for j := range g.NY {
-			lo, hi := g.Y(j)-h/2, g.Y(j)+h/2
-			parts, q = clipIntervals(parts[:0], ivs, q, lo, hi, h)
-			face := f.InletFace(j)
+	// Every grid line is cut on its own, the lines shared out in contiguous ranges; each range
+	// keeps its parts apart, and the ranges' parts are joined in line order, as one pass over the
+	// lines would have stored them.
+	// Vertical lines: east faces of column i at x_i + H/2, and the inlet line (i = −1).
+	vertical := make([]faceSpans, par.Ranges(g.NX, faceLinesMin))
+	par.Rows(g.NX, faceLinesMin, func(r, lo, hi int) {
+		fs := &vertical[r]
+		for i := lo - 1; i < hi-1; i++ {
+			x := g.X0
 			if i >= 0 {
-				face = f.EastFace(g.Index(i, j))
+				x = g.X(i) + h/2
 			}
-			f.setFace(face, parts, lo, hi, i < 0)
-		}
-	}
-	// Horizontal lines: north faces of row j at y_j + H/2; the lines below the first row and above
-	// the last must be dry.
-	for j := -1; j < g.NY; j++ {
-		y := g.Y(0) - h/2
-		if j >= 0 {
-			y = g.Y(j) + h/2
-		}
-		ivs, buf = m.openIntervals(ivs[:0], buf[:0], false, y, xa, xb)
-		if j < 0 || j == g.NY-1 {
-			if len(ivs) > 0 {
-				return nil, fmt.Errorf("mesh: fluid reaches y = %g at x = %g, beyond the grid's rows (the grid must cover the channel)", y, ivs[0][0])
+			ylo, yhi := g.Y(0)-h/2, g.Y(g.NY-1)+h/2
+			fs.ivs, fs.buf = m.openIntervals(fs.ivs[:0], fs.buf[:0], true, x, ylo, yhi)
+			q := 0
+			for j := range g.NY {
+				lo, hi := g.Y(j)-h/2, g.Y(j)+h/2
+				var parts []FacePart
+				parts, q = clipIntervals(fs.scratch[:0], fs.ivs, q, lo, hi, h)
+				fs.scratch = parts
+				face := f.InletFace(j)
+				if i >= 0 {
+					face = f.EastFace(g.Index(i, j))
+				}
+				f.setFace(fs, face, parts, lo, hi, i < 0)
 			}
-			continue
 		}
-		q := 0
-		for i := range g.NX {
-			lo, hi := math.Max(xa, g.X(i)-h/2), math.Min(xb, g.X(i)+h/2)
-			parts, q = clipIntervals(parts[:0], ivs, q, lo, hi, h)
-			f.setFace(f.NorthFace(g.Index(i, j)), parts, lo, hi, false)
+	})
+	// Horizontal lines: north faces of row j at y_j + H/2 (j = −1 below the first row); the
+	// lines below the first row and above the last must be dry.
+	horizontal := make([]faceSpans, par.Ranges(g.NY+1, faceLinesMin))
+	par.Rows(g.NY+1, faceLinesMin, func(r, lo, hi int) {
+		fs := &horizontal[r]
+		for j := lo - 1; j < hi-1; j++ {
+			y := g.Y(0) - h/2
+			if j >= 0 {
+				y = g.Y(j) + h/2
+			}
+			fs.ivs, fs.buf = m.openIntervals(fs.ivs[:0], fs.buf[:0], false, y, xa, xb)
+			if j < 0 || j == g.NY-1 {
+				if len(fs.ivs) > 0 && fs.err == nil {
+					fs.err = fmt.Errorf("mesh: fluid reaches y = %g at x = %g, beyond the grid's rows (the grid must cover the channel)", y, fs.ivs[0][0])
+				}
+				continue
+			}
+			q := 0
+			for i := range g.NX {
+				lo, hi := math.Max(xa, g.X(i)-h/2), math.Min(xb, g.X(i)+h/2)
+				var parts []FacePart
+				parts, q = clipIntervals(fs.scratch[:0], fs.ivs, q, lo, hi, h)
+				fs.scratch = parts
+				f.setFace(fs, f.NorthFace(g.Index(i, j)), parts, lo, hi, false)
+			}
+		}
+	})
+	for _, fs := range slices.Concat(vertical, horizontal) {
+		if fs.err != nil {
+			return nil, fs.err
+		}
+		spanOff, partOff := int32(len(f.spans)), int32(len(f.parts))
+		for _, sp := range fs.spans {
+			f.spans = append(f.spans, partSpan{sp.start + partOff, sp.n})
+		}
+		f.parts = append(f.parts, fs.parts...)
+		for _, face := range fs.faces {
+			f.state[face] += spanOff
 		}
 	}
 	if err := f.findPieces(m); err != nil {
@@ -235,8 +261,24 @@ func NewFaces(m *Mesh) (*Faces, error) {
 	return f, nil
 }
 
-// setFace stores the parts of one face whose whole extent is [lo, hi].
-func (f *Faces) setFace(face int, parts []FacePart, lo, hi float64, inlet bool) {
+// faceSpans collects the parts of the faces of one range of grid lines, with the range's
+// scratch space.
+type faceSpans struct {
+	spans   []partSpan
+	parts   []FacePart
+	faces   []int32 // the faces whose state indexes spans, in order
+	err     error
+	ivs     [][2]float64
+	buf     []float64
+	scratch []FacePart
+}
+
+// faceLinesMin is the number of grid lines from which NewFaces shares them among goroutines.
+const faceLinesMin = 256
+
+// setFace stores the parts of one face whose whole extent is [lo, hi]: in its state when it is
+// closed or whole, else in fs (its state then indexes fs.spans until the ranges are joined).
+func (f *Faces) setFace(fs *faceSpans, face int, parts []FacePart, lo, hi float64, inlet bool) {
 	switch {
 	case len(parts) == 0:
 		f.state[face] = faceClosed
@@ -250,9 +292,10 @@ func (f *Faces) setFace(face int, parts []FacePart, lo, hi float64, inlet bool) 
 			parts[q].Low = NoPiece
 		}
 	}
-	f.state[face] = int32(len(f.spans))
-	f.spans = append(f.spans, partSpan{int32(len(f.parts)), int32(len(parts))})
-	f.parts = append(f.parts, parts...)
+	f.state[face] = int32(len(fs.spans))
+	fs.faces = append(fs.faces, int32(face))
+	fs.spans = append(fs.spans, partSpan{int32(len(fs.parts)), int32(len(parts))})
+	fs.parts = append(fs.parts, parts...)
 }
 
 // clipIntervals appends to dst the parts of the sorted disjoint intervals ivs (from index q on)

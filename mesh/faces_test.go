@@ -2,6 +2,8 @@ package mesh
 
 import (
 	"math"
+	"runtime"
+	"slices"
 	"strings"
 	"testing"
 )
@@ -275,5 +277,41 @@ func TestFacesGridMustCoverChannel(t *testing.T) {
 	_, err = NewFaces(m)
 	if err == nil || !strings.Contains(err.Error(), "beyond the grid") {
 		t.Fatalf("got error %v, want one about fluid beyond the grid", err)
+	}
+}
+
+// TestFacesSameOnAnyThreads checks that the faces of a grid with more than faceLinesMin lines
+// each way, cut by a smooth wall, a circle and a plate thinner than a cell, are the same, bit for
+// bit, whether the lines are cut on one goroutine or shared among several.
+func TestFacesSameOnAnyThreads(t *testing.T) {
+	const h = 1.0 / 300
+	plate, err := NewRectangle(Point{0.9, 0.5 + 0.2*h}, 0.3, 0.3*h, 0, 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	circle := NewCircle(Point{0.4, 0.45}, 0.12)
+	lower := []Point{{0, 0}, {0.6, 0.03}, {1.5, 0}}
+	m := facesMesh(t, 1.5, lower, flat(1, 1.5), true, 0, 1, h, Body{"circle", circle}, Body{"plate", plate})
+	if m.NX <= faceLinesMin || m.NY <= faceLinesMin {
+		t.Fatalf("%d × %d nodes: too few lines to share", m.NX, m.NY)
+	}
+	defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(0))
+	var want *Faces
+	for _, procs := range []int{1, 2, 3} {
+		runtime.GOMAXPROCS(procs)
+		f, err := NewFaces(m)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if want == nil {
+			want = f
+			if len(f.spans) == 0 {
+				t.Fatal("no cut face: the case does not test the joining of parts")
+			}
+			continue
+		}
+		if !slices.Equal(f.state, want.state) || !slices.Equal(f.spans, want.spans) || !slices.Equal(f.parts, want.parts) || !slices.Equal(f.pieces, want.pieces) {
+			t.Errorf("GOMAXPROCS %d: the faces differ from those cut on one goroutine", procs)
+		}
 	}
 }
