@@ -439,99 +439,110 @@ func (f *Faces) findPieces(m *Mesh) error {
 		}
 		return true
 	}
-	for j := range g.NY {
-		for i := range g.NX {
-			k := g.Index(i, j)
-			sides = f.sides(sides[:0], i, j)
-			allOpen, anyOpen := j > 0 && j < g.NY-1, false
-			for _, s := range sides {
-				st := f.state[s.face]
-				if st != faceOpen || s.face >= 2*g.Len() {
-					allOpen = false
-				}
-				if st != faceClosed {
-					anyOpen = true
-				}
-			}
-			if !anyOpen {
-				continue
-			}
-			if allOpen {
-				f.pieces[k] = 1
-				continue
-			}
-			// Members: every open part of every side, then the node if it is in the fluid.
-			mem = mem[:0]
-			for si, s := range sides {
-				tmp = f.Parts(tmp[:0], s.face)
-				a, b := f.Segment(s.face)
-				for pi, p := range tmp {
-					mid := 0.5 * (p.A + p.B)
-					pt := Point{a.X, mid}
-					if a.Y == b.Y {
-						pt = Point{mid, a.Y}
+	// The cells with every side whole (one piece) or none open (no piece) are found on all
+	// goroutines; the others, which change the parts and may add spans, are then grouped in node
+	// order on this one.
+	mixed := make([][]int32, par.Ranges(g.NY, faceLinesMin))
+	par.Rows(g.NY, faceLinesMin, func(r, j0, j1 int) {
+		var sides []cellSide
+		for j := j0; j < j1; j++ {
+			for i := range g.NX {
+				k := g.Index(i, j)
+				sides = f.sides(sides[:0], i, j)
+				allOpen, anyOpen := j > 0 && j < g.NY-1, false
+				for _, s := range sides {
+					st := f.state[s.face]
+					if st != faceOpen || s.face >= 2*g.Len() {
+						allOpen = false
 					}
-					mem = append(mem, member{si, pi, pt})
-				}
-			}
-			nParts := len(mem)
-			node := -1
-			if m.IsFluid(k) {
-				node = len(mem)
-				mem = append(mem, member{side: -1, mid: g.At(i, j)})
-			}
-			parent = parent[:0]
-			for q := range mem {
-				parent = append(parent, q)
-			}
-			for a := range mem {
-				for b := a + 1; b < len(mem); b++ {
-					ra, rb := find(a), find(b)
-					if ra == rb || !see(mem[a].mid, mem[b].mid) {
-						continue
-					}
-					parent[max(ra, rb)] = min(ra, rb)
-				}
-			}
-			if node >= 0 && find(node) == node && nParts > 0 {
-				// The node sees no part (a boundary curls around it): join the nearest.
-				best := 0
-				for q := 1; q < nParts; q++ {
-					if mem[q].mid.Sub(mem[node].mid).Norm() < mem[best].mid.Sub(mem[node].mid).Norm() {
-						best = q
+					if st != faceClosed {
+						anyOpen = true
 					}
 				}
-				parent[find(best)] = node
-			}
-			// Number the groups: the node's first, then in order of first part; a group of inlet
-			// parts alone gets no piece.
-			label := make(map[int]int, 4)
-			hasFace := make(map[int]bool, 4)
-			for q := range nParts {
-				if sides[mem[q].side].face < 2*g.Len() {
-					hasFace[find(q)] = true
+				switch {
+				case allOpen:
+					f.pieces[k] = 1
+				case anyOpen:
+					mixed[r] = append(mixed[r], int32(k))
 				}
 			}
-			if node >= 0 && hasFace[find(node)] {
-				label[find(node)] = 0
+		}
+	})
+	for _, kk := range slices.Concat(mixed...) {
+		k := int(kk)
+		i, j := k%g.NX, k/g.NX
+		sides = f.sides(sides[:0], i, j)
+		// Members: every open part of every side, then the node if it is in the fluid.
+		mem = mem[:0]
+		for si, s := range sides {
+			tmp = f.Parts(tmp[:0], s.face)
+			a, b := f.Segment(s.face)
+			for pi, p := range tmp {
+				mid := 0.5 * (p.A + p.B)
+				pt := Point{a.X, mid}
+				if a.Y == b.Y {
+					pt = Point{mid, a.Y}
+				}
+				mem = append(mem, member{si, pi, pt})
 			}
-			for q := range nParts {
-				r := find(q)
-				if _, ok := label[r]; !ok && hasFace[r] {
-					label[r] = len(label)
+		}
+		nParts := len(mem)
+		node := -1
+		if m.IsFluid(k) {
+			node = len(mem)
+			mem = append(mem, member{side: -1, mid: g.At(i, j)})
+		}
+		parent = parent[:0]
+		for q := range mem {
+			parent = append(parent, q)
+		}
+		for a := range mem {
+			for b := a + 1; b < len(mem); b++ {
+				ra, rb := find(a), find(b)
+				if ra == rb || !see(mem[a].mid, mem[b].mid) {
+					continue
+				}
+				parent[max(ra, rb)] = min(ra, rb)
+			}
+		}
+		if node >= 0 && find(node) == node && nParts > 0 {
+			// The node sees no part (a boundary curls around it): join the nearest.
+			best := 0
+			for q := 1; q < nParts; q++ {
+				if mem[q].mid.Sub(mem[node].mid).Norm() < mem[best].mid.Sub(mem[node].mid).Norm() {
+					best = q
 				}
 			}
-			if len(label) >= NoPiece {
-				return fmt.Errorf("mesh: the dual cell of node (%d, %d) falls into %d pieces, more than %d", i, j, len(label), NoPiece-1)
+			parent[find(best)] = node
+		}
+		// Number the groups: the node's first, then in order of first part; a group of inlet
+		// parts alone gets no piece.
+		label := make(map[int]int, 4)
+		hasFace := make(map[int]bool, 4)
+		for q := range nParts {
+			if sides[mem[q].side].face < 2*g.Len() {
+				hasFace[find(q)] = true
 			}
-			f.pieces[k] = uint8(len(label))
-			for q := range nParts {
-				piece := NoPiece
-				if l, ok := label[find(q)]; ok {
-					piece = l
-				}
-				f.setPiece(sides[mem[q].side], mem[q].part, uint8(piece))
+		}
+		if node >= 0 && hasFace[find(node)] {
+			label[find(node)] = 0
+		}
+		for q := range nParts {
+			r := find(q)
+			if _, ok := label[r]; !ok && hasFace[r] {
+				label[r] = len(label)
 			}
+		}
+		if len(label) >= NoPiece {
+			return fmt.Errorf("mesh: the dual cell of node (%d, %d) falls into %d pieces, more than %d", i, j, len(label), NoPiece-1)
+		}
+		f.pieces[k] = uint8(len(label))
+		for q := range nParts {
+			piece := NoPiece
+			if l, ok := label[find(q)]; ok {
+				piece = l
+			}
+			f.setPiece(sides[mem[q].side], mem[q].part, uint8(piece))
 		}
 	}
 	return nil
