@@ -408,7 +408,10 @@ func (f *fineLevel) prolongRow(j int) {
 	}
 }
 
-// coarsen builds the first coarse level, A_c = Pᵀ A P, from the CSR rows.
+// plainEntries are a plain row's entries in column order (GridMatrix.Row).
+var plainEntries = [5]stepEntry{{0, -1, -1}, {-1, 0, -1}, {0, 0, 4}, {1, 0, -1}, {0, 1, -1}}
+
+// coarsen builds the first coarse level, A_c = Pᵀ A P, from the rows of the matrix.
 func (f *fineLevel) coarsen(mg *Multigrid) (*gridLevel, error) {
 	co := newGridLevel(f.nx/2+1, f.ny/2+1)
 	task := &galerkinTask{coarse: co, fineNY: f.ny, errs: make([]error, co.nblocks), active: make([]int, co.nblocks)}
@@ -419,13 +422,28 @@ func (f *fineLevel) coarsen(mg *Multigrid) (*gridLevel, error) {
 		var vbuf [5]float64
 		for u := int(f.rowStart[j]); u < int(f.rowStart[j+1]); u++ {
 			ent := buf[:0]
-			cols, vals := a.Row(u, cbuf[:], vbuf[:])
-			for q, v := range cols {
-				di, dj, _ := gridStep(int(f.nodes[v])-int(f.nodes[u]), f.nx) // checked by newFineLevel
-				ent = append(ent, stepEntry{int8(di), int8(dj), vals[q]})
+			if a.plain[u>>6]&(1<<(u&63)) != 0 {
+				ent = plainEntries[:]
+			} else {
+				cols, vals := a.Row(u, cbuf[:], vbuf[:])
+				for q, v := range cols {
+					di, dj, _ := gridStep(int(f.nodes[v])-int(f.nodes[u]), f.nx) // checked by newFineLevel
+					ent = append(ent, stepEntry{int8(di), int8(dj), vals[q]})
+				}
 			}
 			visit(int(f.nodes[u])-j*f.nx, ent)
 		}
+	}
+	// A plain row's product with P depends only on its node's parities: formed once for each.
+	var plainAP [4][3][3]float64
+	for q := range plainAP {
+		plainAP[q] = rowAP(q&1, q>>1, plainEntries[:])
+	}
+	task.rowAP = func(i, j int, ent []stepEntry) *[3][3]float64 {
+		if &ent[0] == &plainEntries[0] {
+			return &plainAP[i&1|(j&1)<<1]
+		}
+		return nil
 	}
 	if err := task.run(mg); err != nil {
 		return nil, err

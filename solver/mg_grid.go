@@ -360,8 +360,11 @@ type galerkinTask struct {
 	// entries calls visit for every active node of fine row j, in increasing i, with its
 	// row's coefficients.
 	entries func(j int, visit func(i int, ent []stepEntry))
-	errs    []error
-	active  []int
+	// rowAP, if set, returns row (i, j) of A P for entries ent when it is known beforehand (the
+	// same bits rowAP would compute), else nil.
+	rowAP  func(i, j int, ent []stepEntry) *[3][3]float64
+	errs   []error
+	active []int
 }
 
 // run computes the coarse operator and checks its diagonal.
@@ -382,7 +385,15 @@ func (t *galerkinTask) runBlock(blk int) {
 	co := t.coarse
 	j0, j1 := co.rows(blk)
 	for j := max(0, 2*j0-1); j < min(t.fineNY, 2*j1); j++ {
-		t.entries(j, func(i int, ent []stepEntry) { co.addGalerkin(i, j, ent, j0, j1) })
+		t.entries(j, func(i int, ent []stepEntry) {
+			if t.rowAP != nil {
+				if ap := t.rowAP(i, j, ent); ap != nil {
+					co.addRowAP(i, j, ap, j0, j1)
+					return
+				}
+			}
+			co.addGalerkin(i, j, ent, j0, j1)
+		})
 	}
 	for j := j0; j < j1; j++ {
 		for i := range co.nx {
@@ -407,9 +418,16 @@ func (co *gridLevel) addGalerkin(i, j int, ent []stepEntry, j0, j1 int) {
 	if (j+1)>>1 < j0 || j>>1 >= j1 {
 		return
 	}
-	// ap is row u of A P on the coarse nodes (bx+a, by+b), 0 ≤ a, b ≤ 2: every neighbour v of
-	// u interpolates from coarse column iv/2 (weight 1) when iv is even, from columns ⌊iv/2⌋
-	// and ⌈iv/2⌉ (½ each) when it is odd, and from rows likewise.
+	ap := rowAP(i, j, ent)
+	co.addRowAP(i, j, &ap, j0, j1)
+}
+
+// rowAP returns row u of A P for fine node u = (i, j) with row coefficients ent, on the coarse
+// nodes (bx+a, by+b), 0 ≤ a, b ≤ 2, bx = ⌊i/2⌋ − 1, by = ⌊j/2⌋ − 1: every neighbour v of u
+// interpolates from coarse column iv/2 (weight 1) when iv is even, from columns ⌊iv/2⌋ and
+// ⌈iv/2⌉ (½ each) when it is odd, and from rows likewise. It depends on i and j only through
+// their parities.
+func rowAP(i, j int, ent []stepEntry) [3][3]float64 {
 	bx, by := i>>1-1, j>>1-1
 	var ap [3][3]float64
 	for _, e := range ent {
@@ -434,6 +452,16 @@ func (co *gridLevel) addGalerkin(i, j int, ent []stepEntry, j0, j1 int) {
 			ap[y+1][x+1] += q
 		}
 	}
+	return ap
+}
+
+// addRowAP adds row u = (i, j) of A P, ap (see rowAP), times P(u, C) to the coarse rows
+// j0 ≤ J < j1: A_c(C, D) += P(u, C) · (A P)(u, D).
+func (co *gridLevel) addRowAP(i, j int, ap *[3][3]float64, j0, j1 int) {
+	if (j+1)>>1 < j0 || j>>1 >= j1 {
+		return
+	}
+	bx, by := i>>1-1, j>>1-1
 	// P(u, C): 1 for a coincident coarse node, ½ for each of two, ¼ for each of four. A parent
 	// at column bx + d (d = 1 or 2) takes the entries of ap with a − d in [−1, 1], at stencil
 	// column a − d + 1; likewise for rows.
