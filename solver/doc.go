@@ -23,7 +23,7 @@
 // context stops a solve within one iteration. A CG solve whose true residual stalls within the
 // rounding error of computing it, above the tolerance, ends converged with Stats.Floor set.
 // A Workspace holds the Krylov vectors for a sequence of solves (the superposition solves of ψ
-// share one) and runs their kernels on a worker team.
+// share one) and runs their kernels on the package's worker team.
 //
 // How to choose:
 //
@@ -49,9 +49,12 @@
 //
 // AssemblePsi builds the ψ system of a mesh under a bc.Set: Shortley–Weller rows on cut links,
 // Dirichlet inlet (uniform inflow), ψ = 0 and Q on the walls, ∂ψ/∂x = 0 at the outlet, and one
-// unknown constant per body. SolvePsi solves it by superposition — one solve with every body at
-// ψ = 0 and one per body at ψ = 1, all with the same matrix and preconditioner — and fixes the
-// constants from one condition per body in a small dense system: a given circulation, measured on
+// unknown constant per body, fixed by one condition per body. With the multigrid method SolvePsi
+// appends the constants to the unknowns and the conditions to the rows and solves that bordered
+// system once, by BiCGStab with a block preconditioner built on the V-cycle (psi_bordered.go);
+// with the other methods it superposes — one solve with every body at ψ = 0 and one per body at
+// ψ = 1, all with the same matrix and preconditioner — and solves the conditions as a small
+// dense system. The conditions are a given circulation, measured on
 // a closed staircase of regular links (exact for the discrete solution, whatever staircase is
 // chosen) or, for a body too close to a wall for one, as the surface integral of the fitted
 // tangential velocity; or the Kutta condition, which fits the corner-flow modes

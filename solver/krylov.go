@@ -107,14 +107,11 @@ func checkVectors(method string, n int, b, x []float64) {
 	}
 }
 
-// residualTo computes dst = b − A x and returns ‖dst‖₂. For a *CSR or *GridMatrix it uses one
-// fused pass; the result is the same bit for bit.
+// residualTo computes dst = b − A x and returns ‖dst‖₂. For a rangeOperator (*CSR, *GridMatrix)
+// it uses one fused pass; the result is the same bit for bit.
 func residualTo(a Operator, dst, b, x []float64) float64 {
-	switch c := a.(type) {
-	case *CSR:
-		return math.Sqrt(sumBlocks(c.N, func(lo, hi int) float64 { return c.residualRange(dst, b, x, lo, hi) }))
-	case *GridMatrix:
-		return math.Sqrt(sumBlocks(c.N, func(lo, hi int) float64 { return c.residualRange(dst, b, x, lo, hi) }))
+	if c, ok := a.(rangeOperator); ok {
+		return math.Sqrt(sumBlocks(c.Len(), func(lo, hi int) float64 { return c.residualRange(dst, b, x, lo, hi) }))
 	}
 	a.MulVecTo(dst, x)
 	return math.Sqrt(sumBlocks(len(dst), func(lo, hi int) float64 {

@@ -28,8 +28,7 @@ const (
 type kernels struct {
 	op          int
 	n           int
-	csr         *CSR
-	gm          *GridMatrix
+	ro          rangeOperator
 	d, x, y, z  []float64
 	alpha, beta float64
 	s1, s2      []float64
@@ -49,7 +48,7 @@ func (k *kernels) run(op, n int) (float64, float64) {
 		s1 += k.s1[b]
 		s2 += k.s2[b]
 	}
-	k.d, k.x, k.y, k.z, k.csr, k.gm = nil, nil, nil, nil, nil, nil
+	k.d, k.x, k.y, k.z, k.ro = nil, nil, nil, nil, nil
 	return s1, s2
 }
 
@@ -62,17 +61,9 @@ func (k *kernels) runBlock(b int) {
 	case kDot:
 		s1 = dotRange(k.x[lo:hi], k.y[lo:hi])
 	case kMulVec:
-		if k.gm != nil {
-			s1, s2 = k.gm.mulVecDots2Range(k.d, k.x, k.y, lo, hi)
-		} else {
-			s1, s2 = k.csr.mulVecDots2Range(k.d, k.x, k.y, lo, hi)
-		}
+		s1, s2 = k.ro.mulVecDots2Range(k.d, k.x, k.y, lo, hi)
 	case kResidual:
-		if k.gm != nil {
-			s1 = k.gm.residualRange(k.d, k.y, k.x, lo, hi)
-		} else {
-			s1 = k.csr.residualRange(k.d, k.y, k.x, lo, hi)
-		}
+		s1 = k.ro.residualRange(k.d, k.y, k.x, lo, hi)
 	case kStep:
 		s1 = stepRange(k.x[lo:hi], k.d[lo:hi], k.alpha, k.y[lo:hi], k.z[lo:hi])
 	case kCGDir:
@@ -109,14 +100,20 @@ func stepRange(xs, rs []float64, alpha float64, ps, qs []float64) float64 {
 	return sq
 }
 
+// rangeOperator is an operator whose products and residuals can be formed on one block of rows
+// at a time (at most blockRows rows): the kernels then run them on the worker team.
+type rangeOperator interface {
+	Operator
+	// mulVecDots2Range computes dst = A x on rows [lo, hi) and returns Σ y_u dst_u and Σ dst_u².
+	mulVecDots2Range(dst, x, y []float64, lo, hi int) (float64, float64)
+	// residualRange computes dst = b − A x on rows [lo, hi) and returns Σ dst_u²; dst may be b.
+	residualRange(dst, b, x []float64, lo, hi int) float64
+}
+
 // matrix sets the run's matrix and reports whether the kernels know its kind.
 func (k *kernels) matrix(a Operator) bool {
-	switch m := a.(type) {
-	case *CSR:
-		k.csr = m
-		return true
-	case *GridMatrix:
-		k.gm = m
+	if ro, ok := a.(rangeOperator); ok {
+		k.ro = ro
 		return true
 	}
 	return false

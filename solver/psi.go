@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"math"
 	"runtime"
+	"slices"
 	"time"
 
 	"gonum.org/v1/gonum/mat"
@@ -36,7 +37,7 @@ type PsiSystem struct {
 	Unknown []int32
 	// Nodes maps an unknown index back to its node.
 	Nodes []int32
-	B0    []float64 // right-hand side with every body at ψ = 0
+	B0    []float64 // right-hand side with every body at ψ = 0 (with capacity for K more rows)
 	// BK is the right-hand side of body k at ψ = 1 with everything else at 0. It is non-zero only
 	// in the rows next to the body, so it is stored by those entries.
 	BK []SparseVector
@@ -110,10 +111,11 @@ func AssemblePsi(m *mesh.Mesh, s *bc.Set) (*PsiSystem, error) {
 	if n == 0 {
 		return nil, fmt.Errorf("solver: the mesh has no fluid nodes")
 	}
-	sys.B0 = pages.Make[float64](n)
 	if s.Prescribed != nil {
 		nb = 0
 	}
+	// Room for the bodies' conditions after the rows, where the bordered solve puts them.
+	sys.B0 = pages.Make[float64](n + nb)[:n]
 	sys.BK = make([]SparseVector, nb)
 	for b := range sys.BK {
 		sys.BK[b].N = n
@@ -240,7 +242,8 @@ type PsiSolution struct {
 	// BodyPsi is each body's constant ψ and Circulation its circulation Γ (counter-clockwise
 	// positive, m²/s) measured on a closed staircase of regular links around it.
 	BodyPsi, Circulation []float64
-	// Solves records the 1 + K linear solves (all bodies at 0, then body k at 1).
+	// Solves records the linear solves: one of the bordered system (multigrid), or the 1 + K
+	// superposition solves (all bodies at 0, then body k at 1).
 	Solves []Stats
 	// Setup is the time spent building preconditioners and contours, Solve that of the solves.
 	Setup, Solve time.Duration
@@ -282,9 +285,13 @@ type closure struct {
 	rhs  float64
 }
 
-// SolvePsi solves the ψ system: one solve with every body at ψ = 0, one per body at ψ = 1 (same
-// matrix, same preconditioner), then the body constants from one condition per body (given
-// circulation, or the Kutta condition) as a small dense system, and the combined field.
+// SolvePsi solves the ψ system for the unknowns and the body constants. With the multigrid
+// method (auto, mgcg) and bodies whose constants are unknown, it solves the bordered system of
+// the unknowns and the constants with one condition per body (given circulation, or the Kutta
+// condition) in one Krylov solve (see psi_bordered.go); otherwise it superposes: one solve with
+// every body at ψ = 0, one per body at ψ = 1 (same matrix, same preconditioner), then the body
+// constants from the conditions as a small dense system. Either way it then forms the combined
+// field and measures each body's circulation.
 func SolvePsi(ctx context.Context, sys *PsiSystem, method string, set *Settings) (*PsiSolution, error) {
 	if sys.A == nil {
 		return nil, errReleased
@@ -292,73 +299,30 @@ func SolvePsi(ctx context.Context, sys *PsiSystem, method string, set *Settings)
 	m := sys.Mesh
 	nb := len(sys.BK)
 	start := time.Now()
-	solve, err := sys.solverFor(method)
-	if err != nil {
-		return nil, err
-	}
 	contours := make([]contour, len(m.Geom.Bodies))
 	for b := range contours {
+		var err error
 		if contours[b], err = bodyContour(sys, b); err != nil {
 			return nil, err
 		}
 	}
-	sol := &PsiSolution{Sys: sys, Setup: time.Since(start)}
-	start = time.Now()
 	n := len(sys.Nodes)
-	x0 := pages.Make[float64](n)
-	sys.initialGuess(x0)
-	st, err := solve(ctx, sys.B0, x0, set)
-	st.Method = method
-	sol.Solves = append(sol.Solves, st)
+	var x []float64
+	var sol *PsiSolution
+	var err error
+	if bordered := psiBordered && nb > 0 && (method == MethodAuto || method == MethodMG || method == ""); bordered {
+		x, sol, err = sys.solveWithConstants(ctx, method, contours, set, start)
+		if err != nil && ctx.Err() == nil {
+			// The superposition needs no condition to be well posed in the solve itself: where
+			// the bordered system breaks down (a body's condition nearly dependent on the
+			// others'), it still reports what fails.
+			x, sol, err = sys.superpose(ctx, method, contours, set, start)
+		}
+	} else {
+		x, sol, err = sys.superpose(ctx, method, contours, set, start)
+	}
 	if err != nil {
-		return sol, fmt.Errorf("stream function (bodies at ψ = 0): %w", err)
-	}
-	xk := make([][]float64, nb)
-	var bk []float64 // body b's right-hand side, expanded for the solve; one serves every body
-	if nb > 0 {
-		bk = pages.Make[float64](n)
-	}
-	for b := range nb {
-		xk[b] = pages.Make[float64](n)
-		sys.BK[b].DenseTo(bk)
-		st, err := solve(ctx, bk, xk[b], set)
-		sol.Solves = append(sol.Solves, st)
-		if err != nil {
-			return sol, fmt.Errorf("stream function (body %q at ψ = 1): %w", m.Geom.Bodies[b].Name, err)
-		}
-	}
-	sol.Solve = time.Since(start)
-
-	// Body constants: Γ_b(C) = Γ_b(ψ₀) + Σ_j C_j Γ_b(ψ_j), each linear in C.
-	sol.BodyPsi = make([]float64, nb)
-	if nb > 0 {
-		a := mat.NewDense(nb, nb, nil)
-		r := mat.NewVecDense(nb, nil)
-		for b := range nb {
-			row, rhs, err := sys.closureRow(b, contours[b], x0, xk)
-			if err != nil {
-				return sol, err
-			}
-			a.SetRow(b, row)
-			r.SetVec(b, rhs)
-		}
-		var c mat.VecDense
-		if err := c.SolveVec(a, r); err != nil {
-			return sol, fmt.Errorf("solver: body constants: %w", err)
-		}
-		for b := range nb {
-			sol.BodyPsi[b] = c.AtVec(b)
-			if !isFinite(sol.BodyPsi[b]) {
-				return sol, fmt.Errorf("solver: body %q: constant ψ is not finite", m.Geom.Bodies[b].Name)
-			}
-		}
-	}
-	x := x0
-	for b := range nb {
-		cb := sol.BodyPsi[b]
-		for q, v := range xk[b] {
-			x[q] += cb * v
-		}
+		return sol, err
 	}
 	// The solves' work memory (Krylov vectors, multigrid levels, the body solutions) is garbage
 	// now (nothing below uses it); collecting it before the field is allocated lets the field
@@ -375,6 +339,118 @@ func SolvePsi(ctx context.Context, sys *PsiSystem, method string, set *Settings)
 		sol.Circulation[b] = contours[b].circulation(sol.Psi, c)
 	}
 	return sol, nil
+}
+
+// psiBordered lets SolvePsi solve the bordered system with the multigrid method (tests turn it off
+// to compare with the superposition).
+var psiBordered = true
+
+// solveWithConstants solves the bordered system of the unknowns and the body constants by
+// BiCGStab with the multigrid block preconditioner, from the initial guess and each body's
+// constant taken from it at the body's centre.
+func (sys *PsiSystem) solveWithConstants(ctx context.Context, method string, contours []contour, set *Settings, start time.Time) ([]float64, *PsiSolution, error) {
+	n := len(sys.Nodes)
+	mg, err := NewMultigrid(sys.A, sys.Mesh.Grid, sys.Nodes, MGOptions{})
+	if err != nil {
+		return nil, nil, fmt.Errorf("stream function: %w", err)
+	}
+	collectLarge(n) // the hierarchy's set-up arrays, before the work vectors
+	ws := new(Workspace)
+	ws.ReserveBiCGStab(n + len(sys.BK))
+	sol := &PsiSolution{Sys: sys, Setup: time.Since(start)}
+	t0 := time.Now()
+	// y = (x, C): the initial guess, and each body's constant from it at the body's centre.
+	y := pages.Make[float64](n + len(sys.BK))
+	sys.initialGuess(y[:n])
+	for b := range sys.BK {
+		box := sys.Mesh.Geom.Bodies[b].Shape.Bounds()
+		y[n+b] = sys.guessAt(0.5*(box.Min.X+box.Max.X), 0.5*(box.Min.Y+box.Max.Y))
+	}
+	st, err := sys.solveBordered(ctx, mg, ws, contours, y, set)
+	x, c := y[:n], y[n:]
+	st.Method = method
+	sol.Solves = append(sol.Solves, st)
+	sol.Solve = time.Since(t0)
+	if err != nil {
+		return nil, sol, fmt.Errorf("stream function: %w", err)
+	}
+	sol.BodyPsi = slices.Clone(c)
+	for b, v := range sol.BodyPsi {
+		if !isFinite(v) {
+			return nil, sol, fmt.Errorf("solver: body %q: constant ψ is not finite", sys.Mesh.Geom.Bodies[b].Name)
+		}
+	}
+	return x, sol, nil
+}
+
+// superpose solves with every body at ψ = 0, then each body at ψ = 1, and combines the fields
+// with the body constants that meet the bodies' conditions.
+func (sys *PsiSystem) superpose(ctx context.Context, method string, contours []contour, set *Settings, start time.Time) ([]float64, *PsiSolution, error) {
+	m := sys.Mesh
+	nb := len(sys.BK)
+	solve, err := sys.solverFor(method)
+	if err != nil {
+		return nil, nil, err
+	}
+	sol := &PsiSolution{Sys: sys, Setup: time.Since(start)}
+	start = time.Now()
+	n := len(sys.Nodes)
+	x0 := pages.Make[float64](n)
+	sys.initialGuess(x0)
+	st, err := solve(ctx, sys.B0, x0, set)
+	st.Method = method
+	sol.Solves = append(sol.Solves, st)
+	if err != nil {
+		return nil, sol, fmt.Errorf("stream function (bodies at ψ = 0): %w", err)
+	}
+	xk := make([][]float64, nb)
+	var bk []float64 // body b's right-hand side, expanded for the solve; one serves every body
+	if nb > 0 {
+		bk = pages.Make[float64](n)
+	}
+	for b := range nb {
+		xk[b] = pages.Make[float64](n)
+		sys.BK[b].DenseTo(bk)
+		st, err := solve(ctx, bk, xk[b], set)
+		sol.Solves = append(sol.Solves, st)
+		if err != nil {
+			return nil, sol, fmt.Errorf("stream function (body %q at ψ = 1): %w", m.Geom.Bodies[b].Name, err)
+		}
+	}
+	sol.Solve = time.Since(start)
+
+	// Body constants: Γ_b(C) = Γ_b(ψ₀) + Σ_j C_j Γ_b(ψ_j), each linear in C.
+	sol.BodyPsi = make([]float64, nb)
+	if nb > 0 {
+		a := mat.NewDense(nb, nb, nil)
+		r := mat.NewVecDense(nb, nil)
+		for b := range nb {
+			row, rhs, err := sys.closureRow(b, contours[b], x0, xk)
+			if err != nil {
+				return nil, sol, err
+			}
+			a.SetRow(b, row)
+			r.SetVec(b, rhs)
+		}
+		var c mat.VecDense
+		if err := c.SolveVec(a, r); err != nil {
+			return nil, sol, fmt.Errorf("solver: body constants: %w", err)
+		}
+		for b := range nb {
+			sol.BodyPsi[b] = c.AtVec(b)
+			if !isFinite(sol.BodyPsi[b]) {
+				return nil, sol, fmt.Errorf("solver: body %q: constant ψ is not finite", m.Geom.Bodies[b].Name)
+			}
+		}
+	}
+	x := x0
+	for b := range nb {
+		cb := sol.BodyPsi[b]
+		for q, v := range xk[b] {
+			x[q] += cb * v
+		}
+	}
+	return x, sol, nil
 }
 
 // closureRow returns body b's condition as a row of the constants' system.
@@ -449,13 +525,23 @@ func redBlack(nodes []int32, nx int) (red, black []int32) {
 func (sys *PsiSystem) initialGuess(x []float64) {
 	g := sys.Mesh.Grid
 	geo := sys.Mesh.Geom
+	// The walls' heights at each column, found once.
+	lo, hi := make([]float64, g.NX), make([]float64, g.NX)
+	for i := range g.NX {
+		lo[i], hi[i] = geo.Lower.Y(g.X(i)), geo.Upper.Y(g.X(i))
+	}
 	for q, node := range sys.Nodes {
 		i, j := int(node)%g.NX, int(node)/g.NX
-		xx := g.X(i)
-		lo, hi := geo.Lower.Y(xx), geo.Upper.Y(xx)
-		f := (g.Y(j) - lo) / (hi - lo)
-		x[q] = sys.BC.Q * math.Max(0, math.Min(1, f))
+		x[q] = sys.BC.Q * math.Max(0, math.Min(1, (g.Y(j)-lo[i])/(hi[i]-lo[i])))
 	}
+}
+
+// guessAt returns the initial guess's ψ at (x, y) (initialGuess's value at a node).
+func (sys *PsiSystem) guessAt(x, y float64) float64 {
+	geo := sys.Mesh.Geom
+	lo, hi := geo.Lower.Y(x), geo.Upper.Y(x)
+	f := (y - lo) / (hi - lo)
+	return sys.BC.Q * math.Max(0, math.Min(1, f))
 }
 
 // expand returns ψ at every node from the unknowns x and the body constants.

@@ -238,3 +238,59 @@ func TestSurfaceCirculation(t *testing.T) {
 		t.Errorf("surface circulation %.6f, want the staircase's 0.3 within 0.5 %%", got)
 	}
 }
+
+// TestBorderedAgreesWithSuperposition checks the one bordered solve of the unknowns and the body
+// constants against the 1 + K superposition solves, both by multigrid-preconditioned BiCGStab to
+// a relative residual of 1e-12: a cylinder without circulation (staircase), a lifting cylinder
+// two cells from a wall (surface contour), a cambered foil under the Kutta condition, and the
+// foil with a lifting cylinder beside it (two constants). The body constants, the field and the
+// circulations must agree to 1e-9 (ψ in units of the flow rate Q, Γ in m²/s at U = 1).
+func TestBorderedAgreesWithSuperposition(t *testing.T) {
+	foil, err := mesh.NACA4("2412", 0.5, mesh.Point{X: 1.5, Y: 0.55}, 4*math.Pi/180, 100)
+	if err != nil {
+		t.Fatal(err)
+	}
+	tests := []struct {
+		name   string
+		geo    *mesh.Geometry
+		bodies []bc.Body
+	}{
+		{"cylinder", boxGeometry(t, 4, 1, mesh.Body{Name: "c", Shape: mesh.NewCircle(mesh.Point{X: 1.6, Y: 0.47}, 0.15)}), nil},
+		{"lifting cylinder near a wall", boxGeometry(t, 4, 1, mesh.Body{Name: "c", Shape: mesh.NewCircle(mesh.Point{X: 2, Y: 0.27}, 0.25)}), []bc.Body{{Circulation: 0.3}}},
+		{"Kutta foil", boxGeometry(t, 4, 1.2, mesh.Body{Name: "foil", Shape: foil}), []bc.Body{{Kutta: true}}},
+		{"foil and lifting cylinder", boxGeometry(t, 4, 1.2, mesh.Body{Name: "foil", Shape: foil}, mesh.Body{Name: "c", Shape: mesh.NewCircle(mesh.Point{X: 2.7, Y: 0.4}, 0.1)}),
+			[]bc.Body{{Kutta: true}, {Circulation: -0.1}}},
+	}
+	defer func() { psiBordered = true }()
+	const tol = 1e-9
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			var sols [2]*PsiSolution
+			for q, bordered := range []bool{true, false} {
+				psiBordered = bordered
+				sols[q] = solveCase(t, tt.geo, 0.01, nil, tt.bodies, &Settings{Tolerance: 1e-12})
+			}
+			bd, sp := sols[0], sols[1]
+			if len(bd.Solves) != 1 || len(sp.Solves) != 1+len(bd.BodyPsi) {
+				t.Fatalf("%d and %d solves, want 1 and %d", len(bd.Solves), len(sp.Solves), 1+len(bd.BodyPsi))
+			}
+			q := bd.Sys.BC.Q
+			for b := range bd.BodyPsi {
+				if d := math.Abs(bd.BodyPsi[b] - sp.BodyPsi[b]); d > tol*q {
+					t.Errorf("body %d: ψ %.12g bordered, %.12g superposed", b, bd.BodyPsi[b], sp.BodyPsi[b])
+				}
+				if d := math.Abs(bd.Circulation[b] - sp.Circulation[b]); d > tol {
+					t.Errorf("body %d: Γ %.12g bordered, %.12g superposed", b, bd.Circulation[b], sp.Circulation[b])
+				}
+			}
+			if d := mgMaxDiff(bd.Psi, sp.Psi); d > tol*q {
+				t.Errorf("ψ fields differ by %.3g, want <= %g", d, tol*q)
+			}
+			its := 0
+			for _, st := range sp.Solves {
+				its += st.Iterations
+			}
+			t.Logf("bordered: %d iterations; superposed: %d in %d solves; constants %v", bd.Solves[0].Iterations, its, len(sp.Solves), bd.BodyPsi)
+		})
+	}
+}
