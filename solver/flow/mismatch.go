@@ -326,6 +326,7 @@ func awayFromBoundaries(m *mesh.Mesh, dist float64) []bool {
 	for id := range m.NumBoundaries() {
 		samples = append(samples, m.Sample(id, h/16)...)
 	}
+	r2 := r * (1 - 1e-9) * r * (1 - 1e-9) // squared, to compare without square roots
 	// Each range of rows marks its own nodes, looking at every sample near them.
 	par.Rows(g.NY, parallelRows, func(_, ja, jb int) {
 		for k := ja * g.NX; k < jb*g.NX; k++ {
@@ -343,7 +344,7 @@ func awayFromBoundaries(m *mesh.Mesh, dist float64) []bool {
 			i1 := min(g.NX-1, int(math.Ceil((p.X+r-g.X0)/h)))
 			for j := j0; j <= j1; j++ {
 				for i := i0; i <= i1; i++ {
-					if g.At(i, j).Sub(p).Norm() < r*(1-1e-9) {
+					if d := g.At(i, j).Sub(p); d.X*d.X+d.Y*d.Y < r2 {
 						away[g.Index(i, j)] = false
 					}
 				}
