@@ -43,8 +43,13 @@ type gridLevel struct {
 	coarser    *gridLevel    // the level below, nil on the coarsest
 	dense      *denseInverse // the exact solve of the coarsest level, nil on the others
 	active     int           // number of active nodes
-	blockRows  int
-	nblocks    int
+	// std is the level's most common stencil, and stdRuns[stdRow[j]:stdRow[j+1]] the runs
+	// [i0, i1) of row j's nodes that have it (see standardRuns).
+	std       standardStencil
+	stdRow    []int32
+	stdRuns   [][2]int32
+	blockRows int
+	nblocks   int
 
 	op, c int // the current run's kernel and colour
 }
@@ -133,55 +138,85 @@ func (lv *gridLevel) initRow(j int) {
 	for i := 0; i < len(x); i += 2 {
 		x[i] = b[i] * inv[i]
 	}
-	st := lv.st[row : row+lv.nx]
-	c := lv.x[row-1 : row-1+lv.nx] // c[i] = x[i−1], c[i+2] = x[i+1]
-	st, c = st[:len(x)], c[:len(x)]
-	for i := uint(1); i < uint(len(x)); i += 2 {
-		s := &st[i]
-		var e float64
-		if i+1 < uint(len(x)) {
-			e = x[i+1]
+	v := lv.view(j)
+	lv.spans(j, func(lo, hi int, std bool) {
+		if std {
+			initSpanStd(&v, &lv.std, lo, hi)
+		} else {
+			initSpan(&v, lo, hi)
 		}
-		t := float64(s[3])*c[i] + float64(s[5])*e
+	})
+}
+
+// initSpan does initRow's update of the odd nodes of [lo, hi).
+func initSpan(v *rowView, lo, hi int) {
+	st, x, b, inv := v.st[lo:hi], v.x[lo:hi], v.b[lo:hi], v.inv[lo:hi]
+	w, e := v.c0[lo:hi], v.c2[lo:hi] // x at i − 1 and i + 1
+	x, b, inv, w, e = x[:len(st)], b[:len(st)], inv[:len(st)], w[:len(st)], e[:len(st)]
+	for i := uint(1-lo&1) & 1; i < uint(len(st)); i += 2 {
+		s := &st[i]
+		t := float64(s[3])*w[i] + float64(s[5])*e[i]
 		x[i] = (b[i] - t) * inv[i]
 	}
 }
 
-// rowSlices holds, for one grid row, the slices that a nine-point kernel reads: entry i of
-// m[a], c[a], p[a] is the x of node (i+a−1, j−1), (i+a−1, j) and (i+a−1, j+1).
-type rowSlices struct {
-	st      []stencil
-	m, c, p [3][]float64
+// initSpanStd is initSpan on nodes with the level's standard stencil.
+func initSpanStd(v *rowView, c *standardStencil, lo, hi int) {
+	x, b := v.x[lo:hi], v.b[lo:hi]
+	w, e := v.c0[lo:hi], v.c2[lo:hi]
+	b, w, e = b[:len(x)], w[:len(x)], e[:len(x)]
+	c3, c5, inv := c.a[3], c.a[5], c.inv
+	for i := uint(1-lo&1) & 1; i < uint(len(x)); i += 2 {
+		t := c3*w[i] + c5*e[i]
+		x[i] = (b[i] - t) * inv
+	}
 }
 
-// slicesAt returns the row slices of row j, all of length nx.
-func (lv *gridLevel) slicesAt(j int) rowSlices {
+// rowView holds, for one grid row, the slices that a nine-point kernel reads, all of length nx:
+// entry i of m0, m1, m2 (c0, c1, c2; p0, p1, p2) is the x of node (i−1, j−1), (i, j−1),
+// (i+1, j−1) (the same in row j; in row j+1).
+type rowView struct {
+	st                                 []stencil
+	x, b, inv                          []float64
+	m0, m1, m2, c0, c1, c2, p0, p1, p2 []float64
+}
+
+// view returns the row slices of row j.
+func (lv *gridLevel) view(j int) rowView {
 	sx, n := lv.sx, lv.nx
 	row := (j+1)*sx + 1
-	var r rowSlices
-	r.st = lv.st[row : row+n]
-	for a := range 3 {
-		r.m[a] = lv.x[row-sx+a-1 : row-sx+a-1+n]
-		r.c[a] = lv.x[row+a-1 : row+a-1+n]
-		r.p[a] = lv.x[row+sx+a-1 : row+sx+a-1+n]
+	at := func(off int) []float64 { return lv.x[row+off : row+off+n] }
+	return rowView{
+		st: lv.st[row : row+n], x: at(0), b: lv.b[row : row+n], inv: lv.invD[row : row+n],
+		m0: at(-sx - 1), m1: at(-sx), m2: at(-sx + 1),
+		c0: at(-1), c1: at(0), c2: at(1),
+		p0: at(sx - 1), p1: at(sx), p2: at(sx + 1),
 	}
-	return r
 }
 
 // smoothRow updates the nodes i0, i0+2, … (i0 = 0 or 1) of row j by Gauss–Seidel,
 // x_k = (b_k − Σ_{d≠k} A_kd x_d)/A_kk; the neighbours all have other colours.
 func (lv *gridLevel) smoothRow(j, i0 int) {
-	r := lv.slicesAt(j)
-	row := (j+1)*lv.sx + 1
-	st := r.st
-	x := lv.x[row : row+lv.nx]
-	b := lv.b[row : row+lv.nx]
-	inv := lv.invD[row : row+lv.nx]
+	v := lv.view(j)
+	lv.spans(j, func(lo, hi int, std bool) {
+		if std {
+			smoothSpanStd(&v, &lv.std, lo, hi, i0)
+		} else {
+			smoothSpan(&v, lo, hi, i0)
+		}
+	})
+}
+
+// smoothSpan does smoothRow on the nodes of [lo, hi).
+func smoothSpan(v *rowView, lo, hi, i0 int) {
+	st, x, b, inv := v.st[lo:hi], v.x[lo:hi], v.b[lo:hi], v.inv[lo:hi]
+	m0, m1, m2 := v.m0[lo:hi], v.m1[lo:hi], v.m2[lo:hi]
+	c0, c2 := v.c0[lo:hi], v.c2[lo:hi]
+	p0, p1, p2 := v.p0[lo:hi], v.p1[lo:hi], v.p2[lo:hi]
 	x, b, inv = x[:len(st)], b[:len(st)], inv[:len(st)]
-	m0, m1, m2 := r.m[0][:len(st)], r.m[1][:len(st)], r.m[2][:len(st)]
-	c0, c2 := r.c[0][:len(st)], r.c[2][:len(st)]
-	p0, p1, p2 := r.p[0][:len(st)], r.p[1][:len(st)], r.p[2][:len(st)]
-	for i := uint(i0 & 1); i < uint(len(st)); i += 2 {
+	m0, m1, m2, c0, c2 = m0[:len(st)], m1[:len(st)], m2[:len(st)], c0[:len(st)], c2[:len(st)]
+	p0, p1, p2 = p0[:len(st)], p1[:len(st)], p2[:len(st)]
+	for i := uint(i0^lo) & 1; i < uint(len(st)); i += 2 {
 		s := &st[i]
 		t := (float64(s[0])*m0[i] + float64(s[1])*m1[i] + float64(s[2])*m2[i]) +
 			(float64(s[3])*c0[i] + float64(s[5])*c2[i]) +
@@ -190,26 +225,75 @@ func (lv *gridLevel) smoothRow(j, i0 int) {
 	}
 }
 
+// smoothSpanStd is smoothSpan on nodes with the level's standard stencil: the same sums with
+// the coefficients held in registers.
+func smoothSpanStd(v *rowView, c *standardStencil, lo, hi, i0 int) {
+	x, b := v.x[lo:hi], v.b[lo:hi]
+	m0, m1, m2 := v.m0[lo:hi], v.m1[lo:hi], v.m2[lo:hi]
+	c0, c2 := v.c0[lo:hi], v.c2[lo:hi]
+	p0, p1, p2 := v.p0[lo:hi], v.p1[lo:hi], v.p2[lo:hi]
+	b = b[:len(x)]
+	m0, m1, m2, c0, c2 = m0[:len(x)], m1[:len(x)], m2[:len(x)], c0[:len(x)], c2[:len(x)]
+	p0, p1, p2 = p0[:len(x)], p1[:len(x)], p2[:len(x)]
+	a0, a1, a2, a3, a5, a6, a7, a8, inv := c.a[0], c.a[1], c.a[2], c.a[3], c.a[5], c.a[6], c.a[7], c.a[8], c.inv
+	for i := uint(i0^lo) & 1; i < uint(len(x)); i += 2 {
+		t := (a0*m0[i] + a1*m1[i] + a2*m2[i]) +
+			(a3*c0[i] + a5*c2[i]) +
+			(a6*p0[i] + a7*p1[i] + a8*p2[i])
+		x[i] = (b[i] - t) * inv
+	}
+}
+
 // residualRow writes r = b − A x for row j and zeros on the row's padding.
 func (lv *gridLevel) residualRow(j int) {
-	sl := lv.slicesAt(j)
 	n := lv.nx
 	row := (j+1)*lv.sx + 1
-	st := sl.st
-	b := lv.b[row : row+n]
 	rp := lv.r[row-1 : row+n+2]
 	rp[0], rp[n+1], rp[n+2] = 0, 0, 0
 	r := rp[1 : n+1]
-	b, r = b[:len(st)], r[:len(st)]
-	m0, m1, m2 := sl.m[0][:len(st)], sl.m[1][:len(st)], sl.m[2][:len(st)]
-	c0, c1, c2 := sl.c[0][:len(st)], sl.c[1][:len(st)], sl.c[2][:len(st)]
-	p0, p1, p2 := sl.p[0][:len(st)], sl.p[1][:len(st)], sl.p[2][:len(st)]
+	v := lv.view(j)
+	lv.spans(j, func(lo, hi int, std bool) {
+		if std {
+			residualSpanStd(&v, &lv.std, r, lo, hi)
+		} else {
+			residualSpan(&v, r, lo, hi)
+		}
+	})
+}
+
+// residualSpan does residualRow on the nodes of [lo, hi), into r (the row's residual).
+func residualSpan(v *rowView, r []float64, lo, hi int) {
+	st, b, rr := v.st[lo:hi], v.b[lo:hi], r[lo:hi]
+	m0, m1, m2 := v.m0[lo:hi], v.m1[lo:hi], v.m2[lo:hi]
+	c0, c1, c2 := v.c0[lo:hi], v.c1[lo:hi], v.c2[lo:hi]
+	p0, p1, p2 := v.p0[lo:hi], v.p1[lo:hi], v.p2[lo:hi]
+	b, rr = b[:len(st)], rr[:len(st)]
+	m0, m1, m2, c0, c1, c2 = m0[:len(st)], m1[:len(st)], m2[:len(st)], c0[:len(st)], c1[:len(st)], c2[:len(st)]
+	p0, p1, p2 = p0[:len(st)], p1[:len(st)], p2[:len(st)]
 	for i := range st {
 		s := &st[i]
 		t := (float64(s[0])*m0[i] + float64(s[1])*m1[i] + float64(s[2])*m2[i]) +
 			(float64(s[3])*c0[i] + float64(s[4])*c1[i] + float64(s[5])*c2[i]) +
 			(float64(s[6])*p0[i] + float64(s[7])*p1[i] + float64(s[8])*p2[i])
-		r[i] = b[i] - t
+		rr[i] = b[i] - t
+	}
+}
+
+// residualSpanStd is residualSpan on nodes with the level's standard stencil.
+func residualSpanStd(v *rowView, c *standardStencil, r []float64, lo, hi int) {
+	b, rr := v.b[lo:hi], r[lo:hi]
+	m0, m1, m2 := v.m0[lo:hi], v.m1[lo:hi], v.m2[lo:hi]
+	c0, c1, c2 := v.c0[lo:hi], v.c1[lo:hi], v.c2[lo:hi]
+	p0, p1, p2 := v.p0[lo:hi], v.p1[lo:hi], v.p2[lo:hi]
+	rr = rr[:len(b)]
+	m0, m1, m2, c0, c1, c2 = m0[:len(b)], m1[:len(b)], m2[:len(b)], c0[:len(b)], c1[:len(b)], c2[:len(b)]
+	p0, p1, p2 = p0[:len(b)], p1[:len(b)], p2[:len(b)]
+	a := c.a
+	for i := range b {
+		t := (a[0]*m0[i] + a[1]*m1[i] + a[2]*m2[i]) +
+			(a[3]*c0[i] + a[4]*c1[i] + a[5]*c2[i]) +
+			(a[6]*p0[i] + a[7]*p1[i] + a[8]*p2[i])
+		rr[i] = b[i] - t
 	}
 }
 
@@ -341,6 +425,7 @@ func (lv *gridLevel) finish(symmetric bool) error {
 		lv.invD[k] = 1 / d
 	}
 	lv.st64 = nil
+	lv.standardRuns()
 	return nil
 }
 
