@@ -414,8 +414,9 @@ func peerPipeline(ctx context.Context, spacing float64) (peerPipelineRun, error)
 // before the correction 60P (stencil, b, 1/diagonal read, x written); the residual 60P (stencil,
 // b, x read, r written); the interpolation 16P + 8·P_below (x read and written, the coarser x
 // read); the smoothing after it 68P (x read as well). A four-colour sweep is counted as one
-// pass over the level: its colours can share one pass as the finest level's fused steps do. The
-// coarsest level costs its restriction and its dense inverse, 8n² + 28n for n unknowns.
+// pass over the level: its colours can share one pass as the finest level's fused steps do; nodes
+// in runs of the level's standard stencil read no stencil. The coarsest level costs its
+// restriction and its dense inverse, 8n² + 28n for n unknowns.
 type peerTraffic struct {
 	matrix, vector, vcycle float64 // bytes of one pass over A, one vector, one V-cycle
 }
@@ -446,10 +447,16 @@ func newPeerTraffic(a *GridMatrix, mg *Multigrid) (peerTraffic, error) {
 			vc += 8*nc*nc + 4*nc + 8*nc + 16*nc // inverse, index, b gathered, x written
 			break
 		}
-		vc += (stencilBytes + 24) * p                 // smoothing before
-		vc += (stencilBytes + 24) * p                 // residual
+		// Nodes in runs of the level's standard stencil read no stencil (mg_std.go).
+		std := 0.0
+		for _, run := range lv.stdRuns {
+			std += float64(run[1] - run[0])
+		}
+		sb := stencilBytes * (p - std)
+		vc += sb + 24*p                               // smoothing before
+		vc += sb + 24*p                               // residual
 		vc += 16*p + 8*float64(len(mg.levels[l+1].x)) // interpolation
-		vc += (stencilBytes + 32) * p                 // smoothing after
+		vc += sb + 32*p                               // smoothing after
 		above = p
 	}
 	tr.vcycle = vc
@@ -508,6 +515,13 @@ func peerPsiTraffic(sol *PsiSolution) (peerBandwidth, error) {
 	for _, st := range sol.Solves {
 		b.bytes += tr.bicgstab(st)
 		b.iters += st.Iterations
+	}
+	if nb := len(sys.BK); nb > 0 && len(sol.Solves) == 1 {
+		// The bordered solve (psi_bordered.go): Z = M⁻¹BK once (a V-cycle per body, BK expanded),
+		// the initial guess written, and in each of the two preconditioner solves per iteration
+		// x += Σ c_b z_b (z read, x read and written).
+		v := tr.vector
+		b.bytes += float64(nb)*(tr.vcycle+2*v) + v + float64(b.iters)*2*float64(nb)*3*v
 	}
 	return b, nil
 }
