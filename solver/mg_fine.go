@@ -386,10 +386,6 @@ func (f *fineLevel) residualRange(lo, hi, off, skip int) {
 // grid row j. Node i of the row lies between coarse columns i>>1 and (i+1)>>1 (the same column
 // when i is even), and likewise for rows, so x_u += ¼ Σ of the four (possibly repeated) values.
 func (f *fineLevel) prolongRow(j int) {
-	lo, hi := int(f.rowStart[j]), int(f.rowStart[j+1])
-	nodes := f.nodes[lo:hi]
-	x := f.x[lo:hi]
-	x = x[:len(nodes)]
 	cs := f.coarse.sx
 	cx := f.coarse.x
 	j0, j1 := j>>1, (j+1)>>1
@@ -397,14 +393,50 @@ func (f *fineLevel) prolongRow(j int) {
 	r1 := cx[(j1+1)*cs+1 : (j1+2)*cs]
 	r1 = r1[:len(r0)]
 	base := j * f.nx
-	for q, k := range nodes {
-		i := int(k) - base
-		m := i >> 1
-		if i&1 == 0 {
-			x[q] += 0.5 * (r0[m] + r1[m])
-		} else {
-			x[q] += 0.25 * ((r0[m] + r0[m+1]) + (r1[m] + r1[m+1]))
+	for _, run := range f.a.runs[f.rowRun[j]:f.rowRun[j+1]] {
+		u0, n := int(run.u0), int(run.n)
+		x := f.x[u0 : u0+n]
+		if run.south != mixedRun {
+			// A plain run's nodes are consecutive: columns i0, i0+1, …
+			prolongStretch(x, int(f.nodes[u0])-base, r0, r1)
+			continue
 		}
+		nodes := f.nodes[u0 : u0+n]
+		x = x[:len(nodes)]
+		for q, k := range nodes {
+			i := int(k) - base
+			m := i >> 1
+			if i&1 == 0 {
+				x[q] += 0.5 * (r0[m] + r1[m])
+			} else {
+				x[q] += 0.25 * ((r0[m] + r0[m+1]) + (r1[m] + r1[m+1]))
+			}
+		}
+	}
+}
+
+// prolongStretch adds the interpolation to x, the unknowns of consecutive columns from i0 on: the
+// sums prolongRow forms for each node, taken in pairs of columns (2m, 2m+1).
+func prolongStretch(x []float64, i0 int, r0, r1 []float64) {
+	q := 0
+	if i0&1 == 1 && len(x) > 0 {
+		m := i0 >> 1
+		x[0] += 0.25 * ((r0[m] + r0[m+1]) + (r1[m] + r1[m+1]))
+		q = 1
+	}
+	// x[q] is at the even column 2m, m = (i0+q)/2.
+	m0 := (i0 + q) >> 1
+	pairs := (len(x) - q) / 2
+	a0, b0 := r0[m0:m0+pairs+1], r1[m0:m0+pairs+1]
+	xs := x[q : q+2*pairs]
+	b0 = b0[:len(a0)]
+	for p := range pairs {
+		xs[2*p] += 0.5 * (a0[p] + b0[p])
+		xs[2*p+1] += 0.25 * ((a0[p] + a0[p+1]) + (b0[p] + b0[p+1]))
+	}
+	if rest := q + 2*pairs; rest < len(x) {
+		m := (i0 + rest) >> 1
+		x[rest] += 0.5 * (r0[m] + r1[m])
 	}
 }
 
