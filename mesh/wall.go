@@ -303,7 +303,16 @@ func (w *Wall) Sample(ds float64) []SurfacePoint {
 // SampleBetween returns the points of Sample(ds) with xa ≤ x ≤ xb, and a few beyond each end,
 // with the same arc lengths S.
 func (w *Wall) SampleBetween(xa, xb, ds float64) []SurfacePoint {
-	var out []SurfacePoint
+	// Room for about one point per ds of the range (more where the wall slopes or steps): the
+	// walls of a fine grid carry hundreds of thousands of samples.
+	est := 16 * len(w.runs)
+	if n := len(w.runs); n > 0 && ds > 0 {
+		last := w.runs[n-1].x
+		if lo, hi := math.Max(xa, w.runs[0].x[0]), math.Min(xb, last[len(last)-1]); hi > lo {
+			est += int(math.Min(1<<26, 1.1*(hi-lo)/ds))
+		}
+	}
+	out := make([]SurfacePoint, 0, est)
 	s := 0.0
 	side := 1.0 // lower wall: normal (−y′, 1)/…; upper wall: the opposite
 	if w.Upper {

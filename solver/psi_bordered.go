@@ -7,6 +7,8 @@ import (
 	"slices"
 
 	"gonum.org/v1/gonum/mat"
+
+	"phipsi/internal/pages"
 )
 
 // The bordered ψ system. With K bodies whose constants C_b are unknown, ψ = ψ₀ + Σ C_b ψ_b
@@ -213,10 +215,10 @@ func (t *addTask) runBlock(blk int) {
 func newBorderedPrecon(mg *Multigrid, m *borderedMatrix) (*borderedPrecon, error) {
 	nb := len(m.rows)
 	p := &borderedPrecon{mg: mg, m: m, z: make([][]float64, nb), t: make([]float64, nb), c: make([]float64, nb)}
-	bk := make([]float64, m.n)
+	bk := pages.Make[float64](m.n)
 	s := mat.NewDense(nb, nb, nil)
 	for b := range nb {
-		p.z[b] = make([]float64, m.n)
+		p.z[b] = pages.Make[float64](m.n)
 		m.bk[b].DenseTo(bk)
 		if err := mg.PreconSolve(p.z[b], bk); err != nil {
 			return nil, err
