@@ -385,9 +385,14 @@ func (s *GridMatrix) mulVecRange(dst, x []float64, lo, hi int) {
 // mulVecDots2Range computes dst = A x on rows [lo, hi) and returns Σ y_u dst_u and Σ dst_u².
 func (s *GridMatrix) mulVecDots2Range(dst, x, y []float64, lo, hi int) (float64, float64) {
 	s.productTo(dst[lo:hi], x, lo, hi)
+	return dots2(dst, y, lo, hi)
+}
+
+// dots2 returns Σ y_u d_u and Σ d_u² over rows [lo, hi), summed in row order.
+func dots2(d, y []float64, lo, hi int) (float64, float64) {
 	var dy, dd float64
 	for u := lo; u < hi; u++ {
-		v := dst[u]
+		v := d[u]
 		dy += y[u] * v
 		dd += v * v
 	}
@@ -400,6 +405,12 @@ func (s *GridMatrix) residualRange(dst, b, x []float64, lo, hi int) float64 {
 	var buf [blockRows]float64
 	ax := buf[:hi-lo]
 	s.productTo(ax, x, lo, hi)
+	return subtractRange(dst, b, ax, lo)
+}
+
+// subtractRange writes dst_u = b_u − ax[u − lo] for rows lo ≤ u < lo + len(ax) and returns
+// Σ dst_u², summed in row order. dst may be b.
+func subtractRange(dst, b, ax []float64, lo int) float64 {
 	var sq float64
 	for q, v := range ax {
 		r := b[lo+q] - v

@@ -141,26 +141,14 @@ func (m *borderedMatrix) productRange(dst, y []float64, lo, hi int) {
 
 func (m *borderedMatrix) mulVecDots2Range(dst, x, y []float64, lo, hi int) (float64, float64) {
 	m.productRange(dst, x, lo, hi)
-	var dy, dd float64
-	for u := lo; u < hi; u++ {
-		v := dst[u]
-		dy += y[u] * v
-		dd += v * v
-	}
-	return dy, dd
+	return dots2(dst, y, lo, hi)
 }
 
 func (m *borderedMatrix) residualRange(dst, b, x []float64, lo, hi int) float64 {
 	var buf [blockRows]float64
 	ax := buf[:hi-lo]
 	m.productRangeInto(ax, x, lo, hi)
-	var sq float64
-	for q, v := range ax {
-		r := b[lo+q] - v
-		dst[lo+q] = r
-		sq += r * r
-	}
-	return sq
+	return subtractRange(dst, b, ax, lo)
 }
 
 // productRangeInto writes rows [lo, hi) of M y into out (out[q] is row lo + q).
