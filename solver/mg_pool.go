@@ -41,6 +41,12 @@ type team struct {
 	nw      int           // goroutines taking blocks in the current run, the caller included
 	gen     atomic.Uint64 // number of runs started; helpers watch it
 	pending atomic.Int32  // helpers that have not finished the current run
+	quit    atomic.Bool   // set by stop
+	// spin is how long helpers watch before they park (teamSpin; tests shorten it), and
+	// beforeWake, when set (by tests), runs between the start of a run and the waking of the
+	// parked helpers: it stands for the runner's thread being descheduled there.
+	spin       time.Duration
+	beforeWake func()
 }
 
 // teamHelper is one helper goroutine's parking place.
@@ -53,7 +59,7 @@ type teamHelper struct {
 var workTeam = newTeam()
 
 // newTeam returns a team with no helpers started yet.
-func newTeam() *team { return &team{} }
+func newTeam() *team { return &team{spin: teamSpin} }
 
 // run calls task.runBlock(b) for every b in [0, nblocks) and returns when all have finished.
 // With serial set, or one goroutine allowed, it runs them in order on the calling goroutine.
@@ -80,6 +86,9 @@ func (t *team) run(task blockTask, nblocks int, serial bool) {
 	t.task, t.nblocks, t.nw = task, nblocks, nw
 	t.pending.Store(int32(len(t.helpers)))
 	t.gen.Add(1)
+	if t.beforeWake != nil {
+		t.beforeWake()
+	}
 	for _, h := range t.helpers {
 		if h.parked.Swap(false) {
 			h.wake <- struct{}{}
@@ -94,6 +103,21 @@ func (t *team) run(task blockTask, nblocks int, serial bool) {
 	t.task = nil
 }
 
+// stop ends the helpers (for teams other than workTeam, which lives as long as the program). The
+// team must not be used afterwards.
+func (t *team) stop() {
+	t.mu.Lock()
+	defer t.mu.Unlock()
+	t.quit.Store(true)
+	t.gen.Add(1)
+	for _, h := range t.helpers {
+		if h.parked.Swap(false) {
+			h.wake <- struct{}{}
+		}
+	}
+	t.helpers = nil
+}
+
 // work runs the blocks of goroutine w of the current run.
 func (t *team) work(w int) {
 	for b := w; b < t.nblocks; b += t.nw {
@@ -105,6 +129,9 @@ func (t *team) work(w int) {
 func (t *team) helper(w int, h *teamHelper, seen uint64) {
 	for {
 		seen = t.await(h, seen)
+		if t.quit.Load() {
+			return
+		}
 		if w < t.nw {
 			t.work(w)
 		}
@@ -115,7 +142,9 @@ func (t *team) helper(w int, h *teamHelper, seen uint64) {
 // await returns the number of runs started once it exceeds seen: watching for teamSpin, then
 // parked. A runner that finds the helper parked clears the flag and sends one token; a helper
 // that sees the new run after setting the flag takes the flag back, or, if the runner took it
-// first, the token.
+// first, the token. A runner may reach a helper's flag only after the helper has done the run
+// and parked again (the runner's thread was descheduled meanwhile): that token wakes the helper
+// to no new run, and it parks again.
 func (t *team) await(h *teamHelper, seen uint64) uint64 {
 	start := time.Now()
 	for spins := 0; ; spins++ {
@@ -123,19 +152,23 @@ func (t *team) await(h *teamHelper, seen uint64) uint64 {
 			return g
 		}
 		if spins%64 == 63 {
-			if time.Since(start) > teamSpin {
+			if time.Since(start) > t.spin {
 				break
 			}
 			runtime.Gosched()
 		}
 	}
-	h.parked.Store(true)
-	if g := t.gen.Load(); g != seen {
-		if !h.parked.Swap(false) {
-			<-h.wake
+	for {
+		h.parked.Store(true)
+		if g := t.gen.Load(); g != seen {
+			if !h.parked.Swap(false) {
+				<-h.wake
+			}
+			return g
 		}
-		return g
+		<-h.wake
+		if g := t.gen.Load(); g != seen {
+			return g
+		}
 	}
-	<-h.wake
-	return t.gen.Load()
 }

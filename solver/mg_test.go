@@ -862,6 +862,7 @@ func (r *recordTask) runBlock(b int) { r.hits[b].Add(1) }
 func TestTeamRunsEveryBlockOnce(t *testing.T) {
 	defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(3))
 	tm := newTeam()
+	defer tm.stop()
 	var wg sync.WaitGroup
 	for g := range 2 {
 		wg.Go(func() {
@@ -882,6 +883,28 @@ func TestTeamRunsEveryBlockOnce(t *testing.T) {
 		})
 	}
 	wg.Wait()
+}
+
+// TestTeamLateWake makes the runner late in waking the parked helpers (as when its thread is
+// descheduled between starting a run and waking them), so that a helper that saw the run while
+// spinning has done it and parked again before its flag is reached: the token it then gets
+// must not count as a new run. (It did once: a helper ran a finished run's blocks, and a solve
+// hung waiting for a count that had gone negative.)
+func TestTeamLateWake(t *testing.T) {
+	defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(3))
+	tm := newTeam()
+	defer tm.stop()
+	tm.spin = 5 * time.Microsecond
+	tm.beforeWake = func() { time.Sleep(200 * time.Microsecond) }
+	for r := range 2000 {
+		task := &recordTask{hits: make([]atomic.Int32, 3)}
+		tm.run(task, 3, false)
+		for b := range task.hits {
+			if n := task.hits[b].Load(); n != 1 {
+				t.Fatalf("run %d: block %d ran %d times", r, b, n)
+			}
+		}
+	}
 }
 
 func TestMultigridSameBitsAnyThreads(t *testing.T) {
