@@ -333,10 +333,11 @@ func (s *GridMatrix) ResidualTo(dst, b, x []float64) {
 	forBlocks(s.N, func(lo, hi int) { s.residualRange(dst, b, x, lo, hi) })
 }
 
-// productTo writes (A x)_u into out[u − lo] for rows lo ≤ u < hi (len(out) = hi − lo ≤
-// blockRows). The plain stencil is summed in column order from zero, as rowDot sums a CSR row,
-// so both forms of a matrix give the same products bit for bit (the products by ±1 and 4 are
-// exact). Every kernel forms its products here and then uses them while they are in cache.
+// productTo writes (A x)_u into out[u − lo] for rows lo ≤ u < hi (len(out) ≥ hi − lo), run by
+// run: plain runs by plainProduct, the others row by row. The plain stencil is summed in column
+// order from zero, as rowDot sums a CSR row, so both forms of a matrix give the same products
+// bit for bit (the products by ±1 and 4 are exact). Every kernel forms its products here (kernels
+// in blocks of at most blockRows rows) and then uses them while they are in cache.
 func (s *GridMatrix) productTo(out, x []float64, lo, hi int) {
 	out = out[:hi-lo]
 	for r, u := s.runAt(lo), lo; u < hi; r++ {
