@@ -42,9 +42,9 @@ type closureForm struct {
 	rhs float64
 }
 
-// closureForm returns body b's condition as a bordered row, from the linear form Σ coef·ψ(node)
+// borderRow returns body b's condition as a bordered row, from the linear form Σ coef·ψ(node)
 // + self·C_b = target over the nodes of its staircase, surface samples or Kutta fit.
-func (sys *PsiSystem) closureForm(b int, c contour) (closureForm, error) {
+func (sys *PsiSystem) borderRow(b int, c contour) (closureForm, error) {
 	nb := len(sys.BK)
 	var nodes []int32
 	var coef []float64
@@ -266,7 +266,7 @@ func (sys *PsiSystem) solveBordered(ctx context.Context, mg *Multigrid, ws *Work
 	m := &borderedMatrix{a: sys.A, n: n, bk: sys.BK, rows: make([]closureForm, nb)}
 	for b := range nb {
 		var err error
-		if m.rows[b], err = sys.closureForm(b, contours[b]); err != nil {
+		if m.rows[b], err = sys.borderRow(b, contours[b]); err != nil {
 			return Stats{}, err
 		}
 	}
