@@ -447,35 +447,30 @@ var plainEntries = [5]stepEntry{{0, -1, -1}, {-1, 0, -1}, {0, 0, 4}, {1, 0, -1},
 func (f *fineLevel) coarsen(mg *Multigrid) (*gridLevel, error) {
 	co := newGridLevel(f.nx/2+1, f.ny/2+1)
 	task := &galerkinTask{coarse: co, fineNY: f.ny, errs: make([]error, co.nblocks), active: make([]int, co.nblocks)}
-	task.entries = func(j int, visit func(i int, ent []stepEntry)) {
-		a := f.a
-		var buf [9]stepEntry
-		var cbuf [5]int32
-		var vbuf [5]float64
-		for u := int(f.rowStart[j]); u < int(f.rowStart[j+1]); u++ {
-			ent := buf[:0]
-			if a.plain[u>>6]&(1<<(u&63)) != 0 {
-				ent = plainEntries[:]
-			} else {
-				cols, vals := a.Row(u, cbuf[:], vbuf[:])
-				for q, v := range cols {
-					di, dj, _ := gridStep(int(f.nodes[v])-int(f.nodes[u]), f.nx) // checked by newFineLevel
-					ent = append(ent, stepEntry{int8(di), int8(dj), vals[q]})
-				}
-			}
-			visit(int(f.nodes[u])-j*f.nx, ent)
-		}
-	}
 	// A plain row's product with P depends only on its node's parities: formed once for each.
 	var plainAP [4][3][3]float64
 	for q := range plainAP {
 		plainAP[q] = rowAP(q&1, q>>1, plainEntries[:])
 	}
-	task.rowAP = func(i, j int, ent []stepEntry) *[3][3]float64 {
-		if &ent[0] == &plainEntries[0] {
-			return &plainAP[i&1|(j&1)<<1]
+	task.entries = func(j int, visit func(i int, ent []stepEntry, ap *[3][3]float64)) {
+		a := f.a
+		var buf [9]stepEntry
+		var cbuf [5]int32
+		var vbuf [5]float64
+		for u := int(f.rowStart[j]); u < int(f.rowStart[j+1]); u++ {
+			i := int(f.nodes[u]) - j*f.nx
+			if a.plain[u>>6]&(1<<(u&63)) != 0 {
+				visit(i, nil, &plainAP[i&1|(j&1)<<1])
+				continue
+			}
+			ent := buf[:0]
+			cols, vals := a.Row(u, cbuf[:], vbuf[:])
+			for q, v := range cols {
+				di, dj, _ := gridStep(int(f.nodes[v])-int(f.nodes[u]), f.nx) // checked by newFineLevel
+				ent = append(ent, stepEntry{int8(di), int8(dj), vals[q]})
+			}
+			visit(i, ent, nil)
 		}
-		return nil
 	}
 	if err := task.run(mg); err != nil {
 		return nil, err

@@ -371,7 +371,7 @@ func prolongPairs(x, r0, r1 []float64) {
 func (lv *gridLevel) coarsen(mg *Multigrid) (*gridLevel, error) {
 	co := newGridLevel(lv.nx/2+1, lv.ny/2+1)
 	task := &galerkinTask{coarse: co, fineNY: lv.ny, errs: make([]error, co.nblocks), active: make([]int, co.nblocks)}
-	task.entries = func(j int, visit func(i int, ent []stepEntry)) {
+	task.entries = func(j int, visit func(i int, ent []stepEntry, ap *[3][3]float64)) {
 		var buf [9]stepEntry
 		for i := range lv.nx {
 			k := (j+1)*lv.sx + i + 1
@@ -384,7 +384,7 @@ func (lv *gridLevel) coarsen(mg *Multigrid) (*gridLevel, error) {
 					ent = append(ent, stepEntry{int8(d%3 - 1), int8(d/3 - 1), a})
 				}
 			}
-			visit(i, ent)
+			visit(i, ent, nil)
 		}
 	}
 	if err := task.run(mg); err != nil {
@@ -443,13 +443,11 @@ type galerkinTask struct {
 	coarse *gridLevel
 	fineNY int
 	// entries calls visit for every active node of fine row j, in increasing i, with its
-	// row's coefficients.
-	entries func(j int, visit func(i int, ent []stepEntry))
-	// rowAP, if set, returns row (i, j) of A P for entries ent when it is known beforehand (the
-	// same bits rowAP would compute), else nil.
-	rowAP  func(i, j int, ent []stepEntry) *[3][3]float64
-	errs   []error
-	active []int
+	// row's coefficients, or instead with its row of A P when that is known beforehand (the same
+	// bits rowAP would compute).
+	entries func(j int, visit func(i int, ent []stepEntry, ap *[3][3]float64))
+	errs    []error
+	active  []int
 }
 
 // run computes the coarse operator and checks its diagonal.
@@ -470,12 +468,10 @@ func (t *galerkinTask) runBlock(blk int) {
 	co := t.coarse
 	j0, j1 := co.rows(blk)
 	for j := max(0, 2*j0-1); j < min(t.fineNY, 2*j1); j++ {
-		t.entries(j, func(i int, ent []stepEntry) {
-			if t.rowAP != nil {
-				if ap := t.rowAP(i, j, ent); ap != nil {
-					co.addRowAP(i, j, ap, j0, j1)
-					return
-				}
+		t.entries(j, func(i int, ent []stepEntry, ap *[3][3]float64) {
+			if ap != nil {
+				co.addRowAP(i, j, ap, j0, j1)
+				return
 			}
 			co.addGalerkin(i, j, ent, j0, j1)
 		})

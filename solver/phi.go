@@ -352,18 +352,7 @@ func AssemblePhi(m *mesh.Mesh, s *bc.Set, circulation []float64, opt *PhiOptions
 		face, nb int
 		high     bool
 	}
-	// Rows and columns whose nodes have a face a branch cut crosses (see Cut.jump).
-	cutRow, cutCol := make([]bool, g.NY), make([]bool, g.NX)
-	for _, c := range cuts {
-		for _, d := range []int{0, 1} {
-			if j := c.Row + d; j >= 0 && j < g.NY {
-				cutRow[j] = true
-			}
-			if i := c.Col + d; i >= 0 && i < g.NX {
-				cutCol[i] = true
-			}
-		}
-	}
+	cutRow, cutCol := CutLines(cuts, g)
 	// Each row writes its own entries of B, inflow and anchored only, so the rows can be built
 	// on several goroutines (buildRows).
 	a, err := buildRows(g, sys.Nodes, sys.Unknown, rowRanges(nu), func(bld *GridBuilder, _, row int) error {
@@ -456,6 +445,26 @@ func AssemblePhi(m *mesh.Mesh, s *bc.Set, circulation []float64, opt *PhiOptions
 	}
 	sys.outer = o.Outer != nil
 	return sys, nil
+}
+
+// CutLines marks the grid rows and columns whose nodes have a dual-cell face that one of the cuts
+// crosses (see Cut.jump: a cut's horizontal part crosses the north faces of row Row, its vertical
+// part the east faces of column Col), so that a node (i, j) with neither row[j] nor col[i] set has
+// no jump across any of its four faces. Columns are marked whether or not a cut has a vertical
+// part.
+func CutLines(cuts []Cut, g mesh.Grid) (row, col []bool) {
+	row, col = make([]bool, g.NY), make([]bool, g.NX)
+	for _, c := range cuts {
+		for _, d := range []int{0, 1} {
+			if j := c.Row + d; j >= 0 && j < g.NY {
+				row[j] = true
+			}
+			if i := c.Col + d; i >= 0 && i < g.NX {
+				col[i] = true
+			}
+		}
+	}
+	return row, col
 }
 
 // phiDirectRows lets AssemblePhi write the rows of interior cells with four whole faces directly

@@ -532,16 +532,20 @@ func (sys *PsiSystem) initialGuess(x []float64) {
 	}
 	for q, node := range sys.Nodes {
 		i, j := int(node)%g.NX, int(node)/g.NX
-		x[q] = sys.BC.Q * math.Max(0, math.Min(1, (g.Y(j)-lo[i])/(hi[i]-lo[i])))
+		x[q] = sys.linearPsi(g.Y(j), lo[i], hi[i])
 	}
 }
 
 // guessAt returns the initial guess's ψ at (x, y) (initialGuess's value at a node).
 func (sys *PsiSystem) guessAt(x, y float64) float64 {
 	geo := sys.Mesh.Geom
-	lo, hi := geo.Lower.Y(x), geo.Upper.Y(x)
-	f := (y - lo) / (hi - lo)
-	return sys.BC.Q * math.Max(0, math.Min(1, f))
+	return sys.linearPsi(y, geo.Lower.Y(x), geo.Upper.Y(x))
+}
+
+// linearPsi returns ψ rising linearly from 0 at the lower wall's height lo to Q at the upper's hi,
+// held at 0 and Q beyond them.
+func (sys *PsiSystem) linearPsi(y, lo, hi float64) float64 {
+	return sys.BC.Q * math.Max(0, math.Min(1, (y-lo)/(hi-lo)))
 }
 
 // expand returns ψ at every node from the unknowns x and the body constants.

@@ -241,19 +241,7 @@ func MismatchAt(r *Result, phi *solver.PhiSolution) (WorstMismatch, error) {
 	away := awayFromBoundaries(m, MismatchDistance)
 	g := m.Grid
 	// Rows and columns whose nodes have a face on a branch cut take the general path.
-	cutRow, cutCol := make([]bool, g.NY+1), make([]bool, g.NX+1)
-	for _, c := range phi.Sys.Cuts {
-		for _, j := range []int{c.Row, c.Row + 1} {
-			if j >= 0 && j < g.NY {
-				cutRow[j] = true
-			}
-		}
-		for _, i := range []int{c.Col, c.Col + 1} {
-			if i >= 0 && i < g.NX {
-				cutCol[i] = true
-			}
-		}
-	}
+	cutRow, cutCol := solver.CutLines(phi.Sys.Cuts, g)
 	type worstOf struct {
 		d2, du, dv float64 // |V_φ − V_ψ|² and its parts
 		at, count  int
