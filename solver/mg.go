@@ -3,6 +3,7 @@ package solver
 import (
 	"fmt"
 	"runtime"
+	"unsafe"
 
 	"phipsi/internal/pages"
 	"phipsi/mesh"
@@ -30,6 +31,14 @@ type MGOptions struct {
 	// Coarsest is the number of unknowns at or below which a level is not coarsened further but
 	// solved exactly; 0 means DefaultMGCoarsest. It must not be negative.
 	Coarsest int
+	// Scratch, if not nil, is memory the set-up may use for the float64 operators of the coarse
+	// levels while it forms them: on a grid whose nodes are nearly all unknowns, about 2.9
+	// values per unknown hold every level (a level's operator and the next one's are needed at
+	// once; the levels take turns in two regions). The Multigrid keeps no reference to it, so the
+	// caller may use it for anything once NewMultigrid has returned: the work vectors of the
+	// Krylov solve that the V-cycle will precondition, say, which so cost no fresh memory twice.
+	// A level that does not fit allocates its own.
+	Scratch []float64
 }
 
 // Multigrid is a geometric multigrid V-cycle used as a preconditioner (Tatebe 1993: R = Pᵀ,
@@ -93,6 +102,9 @@ type Multigrid struct {
 	// unfused makes the finest level run its steps as separate passes (for tests: the fused
 	// passes must give the same bits).
 	unfused bool
+	// scratch is MGOptions.Scratch during set-up (see setupStencils), nil afterwards.
+	scratch []float64
+	regions [2][]stencil64
 }
 
 // mgMinParallel is the default Multigrid.minParallel.
@@ -167,7 +179,9 @@ func NewMultigrid(a Operator, g mesh.Grid, nodes []int32, o MGOptions) (*Multigr
 		symmetric:   o.Symmetric,
 		team:        workTeam,
 		minParallel: mgMinParallel,
+		scratch:     o.Scratch,
 	}
+	defer func() { mg.scratch, mg.regions = nil, [2][]stencil64{} }()
 	if mg.smooth == 0 {
 		mg.smooth = DefaultMGSmooth
 	}
@@ -381,3 +395,35 @@ func blockRowsFor(nx int) int { return max(1, (mgBlockNodes+nx-1)/nx) }
 
 // ceilDiv returns ⌈a/b⌉ for a ≥ 0, b > 0.
 func ceilDiv(a, b int) int { return (a + b - 1) / b }
+
+// setupStencils returns zeroed float64 stencils for coarse level l (0 the first) of size nodes,
+// from the set-up scratch where it fits: levels 0 and 1 take the first two regions of it, and
+// each later level the region of the level two above, which has been stored in float32 and has
+// dropped its float64 operator by then (levels shrink, so it fits).
+func (mg *Multigrid) setupStencils(l, size int) []stencil64 {
+	r := &mg.regions[l&1]
+	if l < 2 {
+		// Region 0 starts the scratch, region 1 follows it.
+		off := 0
+		if l == 1 {
+			off = 9 * len(mg.regions[0])
+		}
+		if rest := len(mg.scratch) - off; off <= len(mg.scratch) && rest >= 9*size {
+			*r = asStencils(mg.scratch[off : off+9*size])
+		}
+	}
+	if len(*r) < size {
+		return pages.Make[stencil64](size)
+	}
+	st := (*r)[:size]
+	clear(st)
+	return st
+}
+
+// asStencils views v, whose length is a multiple of 9, as stencils.
+func asStencils(v []float64) []stencil64 {
+	if len(v) == 0 {
+		return nil
+	}
+	return unsafe.Slice((*stencil64)(unsafe.Pointer(unsafe.SliceData(v))), len(v)/9)
+}

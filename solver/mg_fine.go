@@ -445,7 +445,7 @@ var plainEntries = [5]stepEntry{{0, -1, -1}, {-1, 0, -1}, {0, 0, 4}, {1, 0, -1},
 
 // coarsen builds the first coarse level, A_c = Pᵀ A P, from the rows of the matrix.
 func (f *fineLevel) coarsen(mg *Multigrid) (*gridLevel, error) {
-	co := newGridLevel(f.nx/2+1, f.ny/2+1)
+	co := mg.newGridLevel(0, f.nx/2+1, f.ny/2+1)
 	task := &galerkinTask{coarse: co, fineNY: f.ny, errs: make([]error, co.nblocks), active: make([]int, co.nblocks)}
 	// A plain row's product with P depends only on its node's parities: formed once for each.
 	var plainAP [4][3][3]float64

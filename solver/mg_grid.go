@@ -54,13 +54,13 @@ type gridLevel struct {
 	op, c int // the current run's kernel and colour
 }
 
-// newGridLevel allocates a level of nx × ny nodes.
-func newGridLevel(nx, ny int) *gridLevel {
+// newGridLevel allocates coarse level l (0 the first) of mg, of nx × ny nodes.
+func (mg *Multigrid) newGridLevel(l, nx, ny int) *gridLevel {
 	sx := nx + 3
 	size := sx * (ny + 3)
 	lv := &gridLevel{
 		nx: nx, ny: ny, sx: sx,
-		st64: pages.Make[stencil64](size),
+		st64: mg.setupStencils(l, size),
 		invD: pages.Make[float64](size),
 		x:    pages.Make[float64](size),
 		b:    pages.Make[float64](size),
@@ -369,7 +369,7 @@ func prolongPairs(x, r0, r1 []float64) {
 
 // coarsen builds the level below lv, A_c = Pᵀ A P.
 func (lv *gridLevel) coarsen(mg *Multigrid) (*gridLevel, error) {
-	co := newGridLevel(lv.nx/2+1, lv.ny/2+1)
+	co := mg.newGridLevel(len(mg.levels), lv.nx/2+1, lv.ny/2+1)
 	task := &galerkinTask{coarse: co, fineNY: lv.ny, errs: make([]error, co.nblocks), active: make([]int, co.nblocks)}
 	task.entries = func(j int, visit func(i int, ent []stepEntry, ap *[3][3]float64)) {
 		var buf [9]stepEntry

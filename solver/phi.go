@@ -633,12 +633,13 @@ func SolvePhi(ctx context.Context, sys *PhiSystem, method string, set *Settings)
 		ws.ReserveCG(sys.A.Len())
 		solve = func(x []float64) (Stats, error) { return ws.CG(ctx, sys.A, sys.B, x, jac, set) }
 	case MethodAuto, MethodMG, "":
-		mg, err := NewMultigrid(sys.A, sys.Mesh.Grid, sys.Nodes, MGOptions{Symmetric: true})
+		// The work vectors come first: the hierarchy forms its coarse operators in them.
+		ws.ReserveCG(sys.A.Len())
+		mg, err := NewMultigrid(sys.A, sys.Mesh.Grid, sys.Nodes, MGOptions{Symmetric: true, Scratch: ws.buf})
 		if err != nil {
 			return nil, fmt.Errorf("velocity potential: %w", err)
 		}
-		collectLarge(sys.A.Len()) // the hierarchy's set-up arrays, before the work vectors
-		ws.ReserveCG(sys.A.Len())
+		collectLarge(sys.A.Len()) // the hierarchy's set-up garbage, before the solve allocates
 		solve = func(x []float64) (Stats, error) { return ws.CG(ctx, sys.A, sys.B, x, mg, set) }
 	case MethodSOR:
 		g := sys.Mesh.Grid

@@ -350,13 +350,14 @@ var psiBordered = true
 // constant taken from it at the body's centre.
 func (sys *PsiSystem) solveWithConstants(ctx context.Context, method string, contours []contour, set *Settings, start time.Time) ([]float64, *PsiSolution, error) {
 	n := len(sys.Nodes)
-	mg, err := NewMultigrid(sys.A, sys.Mesh.Grid, sys.Nodes, MGOptions{})
+	// The work vectors come first: the hierarchy forms its coarse operators in them.
+	ws := new(Workspace)
+	ws.ReserveBiCGStab(n + len(sys.BK))
+	mg, err := NewMultigrid(sys.A, sys.Mesh.Grid, sys.Nodes, MGOptions{Scratch: ws.buf})
 	if err != nil {
 		return nil, nil, fmt.Errorf("stream function: %w", err)
 	}
-	collectLarge(n) // the hierarchy's set-up arrays, before the work vectors
-	ws := new(Workspace)
-	ws.ReserveBiCGStab(n + len(sys.BK))
+	collectLarge(n) // the hierarchy's set-up garbage, before the solve allocates
 	sol := &PsiSolution{Sys: sys, Setup: time.Since(start)}
 	t0 := time.Now()
 	// y = (x, C): the initial guess, and each body's constant from it at the body's centre.
@@ -472,13 +473,14 @@ func (sys *PsiSystem) solverFor(method string) (func(ctx context.Context, b, x [
 	switch method {
 	case MethodAuto, MethodMG, "":
 		// BiCGStab with a multigrid V-cycle.
-		mg, err := NewMultigrid(sys.A, sys.Mesh.Grid, sys.Nodes, MGOptions{})
+		// The work vectors come first: the hierarchy forms its coarse operators in them.
+		ws := new(Workspace)
+		ws.ReserveBiCGStab(sys.A.Len())
+		mg, err := NewMultigrid(sys.A, sys.Mesh.Grid, sys.Nodes, MGOptions{Scratch: ws.buf})
 		if err != nil {
 			return nil, fmt.Errorf("stream function: %w", err)
 		}
-		collectLarge(sys.A.Len()) // the hierarchy's set-up arrays, before the work vectors
-		ws := new(Workspace)
-		ws.ReserveBiCGStab(sys.A.Len())
+		collectLarge(sys.A.Len()) // the hierarchy's set-up garbage, before the solves allocate
 		return func(ctx context.Context, b, x []float64, s *Settings) (Stats, error) {
 			return ws.BiCGStab(ctx, sys.A, b, x, mg, s)
 		}, nil

@@ -199,11 +199,11 @@ func (t *addTask) runBlock(blk int) {
 	}
 }
 
-// newBorderedPrecon forms Z and S⁻¹.
-func newBorderedPrecon(mg *Multigrid, m *borderedMatrix) (*borderedPrecon, error) {
+// newBorderedPrecon forms Z and S⁻¹. It overwrites bk, of length m.n, with each column of B K in
+// turn.
+func newBorderedPrecon(mg *Multigrid, m *borderedMatrix, bk []float64) (*borderedPrecon, error) {
 	nb := len(m.rows)
 	p := &borderedPrecon{mg: mg, m: m, z: make([][]float64, nb), t: make([]float64, nb), c: make([]float64, nb)}
-	bk := pages.Make[float64](m.n)
 	s := mat.NewDense(nb, nb, nil)
 	for b := range nb {
 		p.z[b] = pages.Make[float64](m.n)
@@ -270,7 +270,9 @@ func (sys *PsiSystem) solveBordered(ctx context.Context, mg *Multigrid, ws *Work
 			return Stats{}, err
 		}
 	}
-	p, err := newBorderedPrecon(mg, m)
+	// The columns of B K pass through a work vector of the solve, which writes it before reading.
+	ws.ReserveBiCGStab(n + nb)
+	p, err := newBorderedPrecon(mg, m, ws.vector(0, n))
 	if err != nil {
 		return Stats{}, err
 	}
