@@ -446,11 +446,21 @@ var plainEntries = [5]stepEntry{{0, -1, -1}, {-1, 0, -1}, {0, 0, 4}, {1, 0, -1},
 // coarsen builds the first coarse level, A_c = Pᵀ A P, from the rows of the matrix.
 func (f *fineLevel) coarsen(mg *Multigrid) (*gridLevel, error) {
 	co := mg.newGridLevel(0, f.nx/2+1, f.ny/2+1)
-	task := &galerkinTask{coarse: co, fineNY: f.ny, errs: make([]error, co.nblocks), active: make([]int, co.nblocks)}
+	task := &galerkinTask{coarse: co, fineNX: f.nx, fineNY: f.ny, errs: make([]error, co.nblocks), active: make([]int, co.nblocks)}
 	// A plain row's product with P depends only on its node's parities: formed once for each.
-	var plainAP [4][3][3]float64
+	// The plain row is the level's template.
+	plainAP := &task.tmplAP
 	for q := range plainAP {
 		plainAP[q] = rowAP(q&1, q>>1, plainEntries[:])
+	}
+	task.uniformRow = func(j int, row []bool) {
+		clear(row)
+		u0, u1 := int(f.rowStart[j]), int(f.rowStart[j+1])
+		for u := u0; u < u1; u++ {
+			i := int(f.nodes[u]) - j*f.nx
+			// A node with two unknowns (the split pieces of a cell) has no template row.
+			row[i] = f.a.plain[u>>6]&(1<<(u&63)) != 0 && (u == u0 || f.nodes[u-1] != f.nodes[u])
+		}
 	}
 	task.entries = func(j int, visit func(i int, ent []stepEntry, ap *[3][3]float64)) {
 		a := f.a

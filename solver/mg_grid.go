@@ -50,6 +50,13 @@ type gridLevel struct {
 	stdRuns   [][2]int32
 	blockRows int
 	nblocks   int
+	// uniform marks, during set-up, the nodes whose float64 row is tmpl, the level's template:
+	// every node of the level above that such a node interpolates to has that level's template
+	// row (on the finest level, the plain five-point row), so the Galerkin product of the row is
+	// formed once (see galerkinTask). Nil when the level has no template.
+	uniform      []bool
+	tmpl         stencil64
+	uniformNodes int // the number of uniform nodes, kept after set-up
 
 	op, c int // the current run's kernel and colour
 }
@@ -370,27 +377,46 @@ func prolongPairs(x, r0, r1 []float64) {
 // coarsen builds the level below lv, A_c = Pᵀ A P.
 func (lv *gridLevel) coarsen(mg *Multigrid) (*gridLevel, error) {
 	co := mg.newGridLevel(len(mg.levels), lv.nx/2+1, lv.ny/2+1)
-	task := &galerkinTask{coarse: co, fineNY: lv.ny, errs: make([]error, co.nblocks), active: make([]int, co.nblocks)}
+	task := &galerkinTask{coarse: co, fineNX: lv.nx, fineNY: lv.ny, errs: make([]error, co.nblocks), active: make([]int, co.nblocks)}
+	var buf [9]stepEntry
+	if lv.uniform != nil {
+		// The template row's product with P, once for each parity of its node.
+		ent := stencilEntries(&lv.tmpl, buf[:0])
+		for q := range task.tmplAP {
+			task.tmplAP[q] = rowAP(q&1, q>>1, ent)
+		}
+		task.uniformRow = func(j int, row []bool) {
+			k := (j+1)*lv.sx + 1
+			copy(row, lv.uniform[k:k+lv.nx])
+		}
+	}
 	task.entries = func(j int, visit func(i int, ent []stepEntry, ap *[3][3]float64)) {
 		var buf [9]stepEntry
 		for i := range lv.nx {
 			k := (j+1)*lv.sx + i + 1
-			if lv.invD[k] == 0 {
-				continue
+			switch {
+			case lv.invD[k] == 0:
+			case lv.uniform != nil && lv.uniform[k]:
+				visit(i, nil, &task.tmplAP[i&1|(j&1)<<1])
+			default:
+				visit(i, stencilEntries(&lv.st64[k], buf[:0]), nil)
 			}
-			ent := buf[:0]
-			for d, a := range lv.st64[k] {
-				if a != 0 {
-					ent = append(ent, stepEntry{int8(d%3 - 1), int8(d/3 - 1), a})
-				}
-			}
-			visit(i, ent, nil)
 		}
 	}
 	if err := task.run(mg); err != nil {
 		return nil, err
 	}
 	return co, nil
+}
+
+// stencilEntries appends the non-zero coefficients of s to ent, in stencil order.
+func stencilEntries(s *stencil64, ent []stepEntry) []stepEntry {
+	for d, a := range s {
+		if a != 0 {
+			ent = append(ent, stepEntry{int8(d%3 - 1), int8(d/3 - 1), a})
+		}
+	}
+	return ent
 }
 
 // finish stores the level's operator for the V-cycle: symmetrised when symmetric is set
@@ -424,7 +450,7 @@ func (lv *gridLevel) finish(symmetric bool) error {
 		}
 		lv.invD[k] = 1 / d
 	}
-	lv.st64 = nil
+	lv.st64, lv.uniform = nil, nil
 	lv.standardRuns()
 	return nil
 }
@@ -439,26 +465,56 @@ type stepEntry struct {
 // block by block of coarse rows. Each block walks the fine rows that interpolate from its
 // coarse rows (neighbouring blocks share one fine row) and adds every contribution to a coarse
 // entry in the order of the fine nodes, so the result does not depend on the blocks.
+//
+// Most coarse nodes lie where every fine row they interpolate to is the same template row (the
+// plain five-point row on the finest level): such a node's row is the Galerkin product of that
+// template alone, formed once on a 3 × 3 patch by the same additions in the same order, and
+// copied; the fine nodes that interpolate only to such nodes are not visited.
 type galerkinTask struct {
-	coarse *gridLevel
-	fineNY int
+	coarse         *gridLevel
+	fineNX, fineNY int
+	// uniformRow, if not nil, sets row[i] for the fine nodes (i, j) that carry the fine level's
+	// template row (one unknown, with that row), and tmplAP holds the template's row of A P
+	// (rowAP) for each parity i&1 | (j&1)<<1 of its node.
+	uniformRow func(j int, row []bool)
+	tmplAP     [4][3][3]float64
 	// entries calls visit for every active node of fine row j, in increasing i, with its
 	// row's coefficients, or instead with its row of A P when that is known beforehand (the same
 	// bits rowAP would compute).
-	entries func(j int, visit func(i int, ent []stepEntry, ap *[3][3]float64))
-	errs    []error
-	active  []int
+	entries      func(j int, visit func(i int, ent []stepEntry, ap *[3][3]float64))
+	errs         []error
+	active       []int
+	uniformNodes []int // per block
 }
+
+// galerkinUniform lets the Galerkin products copy the template row of uniform nodes (tests turn
+// it off to compare the bits with those of the general sums).
+var galerkinUniform = true
 
 // run computes the coarse operator and checks its diagonal.
 func (t *galerkinTask) run(mg *Multigrid) error {
 	co := t.coarse
+	if t.uniformRow != nil && galerkinUniform {
+		// The row of coarse node (1, 1) of a 3 × 3 level from the nine template rows around it.
+		patch := &gridLevel{nx: 3, ny: 3, sx: 6, st64: make([]stencil64, 36)}
+		for j := 1; j <= 3; j++ {
+			for i := 1; i <= 3; i++ {
+				patch.addRowAP(i, j, &t.tmplAP[i&1|(j&1)<<1], 0, 3)
+			}
+		}
+		co.tmpl = patch.st64[2*patch.sx+2]
+		co.uniform = make([]bool, len(co.st64))
+		t.uniformNodes = make([]int, co.nblocks)
+	}
 	mg.team.run(t, co.nblocks, co.nx*co.ny < mg.minParallel)
 	for b, err := range t.errs {
 		if err != nil {
 			return err
 		}
 		co.active += t.active[b]
+		if t.uniformNodes != nil {
+			co.uniformNodes += t.uniformNodes[b]
+		}
 	}
 	return nil
 }
@@ -467,8 +523,14 @@ func (t *galerkinTask) run(mg *Multigrid) error {
 func (t *galerkinTask) runBlock(blk int) {
 	co := t.coarse
 	j0, j1 := co.rows(blk)
+	if co.uniform != nil {
+		t.markUniform(blk, j0, j1)
+	}
 	for j := max(0, 2*j0-1); j < min(t.fineNY, 2*j1); j++ {
 		t.entries(j, func(i int, ent []stepEntry, ap *[3][3]float64) {
+			if co.uniform != nil && co.parentsUniform(i, j, j0, j1) {
+				return
+			}
 			if ap != nil {
 				co.addRowAP(i, j, ap, j0, j1)
 				return
@@ -480,6 +542,9 @@ func (t *galerkinTask) runBlock(blk int) {
 		for i := range co.nx {
 			k := (j+1)*co.sx + i + 1
 			s := &co.st64[k]
+			if co.uniform != nil && co.uniform[k] {
+				*s = co.tmpl
+			}
 			if *s == (stencil64{}) {
 				continue
 			}
@@ -491,6 +556,50 @@ func (t *galerkinTask) runBlock(blk int) {
 			t.active[blk]++
 		}
 	}
+}
+
+// markUniform sets co.uniform for the coarse nodes of rows j0 ≤ J < j1 whose nine fine
+// nodes (2I + a, 2J + b), −1 ≤ a, b ≤ 1, are all inside the fine grid and carry its template row.
+func (t *galerkinTask) markUniform(blk, j0, j1 int) {
+	co, nx := t.coarse, t.fineNX
+	lo := max(0, 2*j0-1)
+	hi := min(t.fineNY, 2*j1)
+	rows := make([]bool, (hi-lo)*nx)
+	for j := lo; j < hi; j++ {
+		t.uniformRow(j, rows[(j-lo)*nx:(j-lo+1)*nx])
+	}
+	for J := j0; J < j1; J++ {
+		if 2*J-1 < 0 || 2*J+1 >= t.fineNY {
+			continue
+		}
+		for I := 1; 2*I+1 < nx; I++ {
+			all := true
+			for b := -1; b <= 1 && all; b++ {
+				r := rows[(2*J+b-lo)*nx:]
+				all = r[2*I-1] && r[2*I] && r[2*I+1]
+			}
+			co.uniform[(J+1)*co.sx+I+1] = all
+			if all {
+				t.uniformNodes[blk]++
+			}
+		}
+	}
+}
+
+// parentsUniform reports whether every coarse node in rows j0 ≤ J < j1 that fine node (i, j)
+// interpolates from is uniform (the others are not this block's to form).
+func (co *gridLevel) parentsUniform(i, j, j0, j1 int) bool {
+	for J := j >> 1; J <= (j+1)>>1; J++ {
+		if J < j0 || J >= j1 {
+			continue
+		}
+		for I := i >> 1; I <= (i+1)>>1; I++ {
+			if !co.uniform[(J+1)*co.sx+I+1] {
+				return false
+			}
+		}
+	}
+	return true
 }
 
 // addGalerkin adds the contributions of fine node (i, j), whose row has coefficients ent, to the

@@ -978,6 +978,42 @@ func TestMultigridScratch(t *testing.T) {
 	}
 }
 
+// TestMultigridUniformSameBits checks that copying the template row into the uniform coarse
+// nodes gives every coarse operator, bit for bit, that the general Galerkin sums give, on the ψ
+// system and a symmetric one of each passage, and that there are uniform nodes to copy into.
+func TestMultigridUniformSameBits(t *testing.T) {
+	defer func() { galerkinUniform = true }()
+	for _, p := range mgPassages {
+		sys := p.psi(t, 40000)
+		for _, c := range []struct {
+			name      string
+			a         *CSR
+			symmetric bool
+		}{{"psi", sys.A.CSR(), false}, {"spd", mgSPD(sys), true}} {
+			build := func(uniform bool) (*Multigrid, int) {
+				galerkinUniform = uniform
+				mg, err := NewMultigrid(c.a, sys.Mesh.Grid, sys.Nodes, MGOptions{Symmetric: c.symmetric})
+				if err != nil {
+					t.Fatal(err)
+				}
+				return mg, mg.levels[0].uniformNodes
+			}
+			want, _ := build(false)
+			got, copied := build(true)
+			if copied < c.a.N/8 {
+				t.Errorf("%s %s: %d uniform coarse nodes, want at least %d (most of the first level)", p.name, c.name, copied, c.a.N/8)
+			}
+			for l, lv := range got.levels[:len(got.levels)-1] {
+				for k := range lv.st {
+					if lv.st[k] != want.levels[l].st[k] || math.Float64bits(lv.invD[k]) != math.Float64bits(want.levels[l].invD[k]) {
+						t.Fatalf("%s %s, level %d, node %d: got %v, want %v (general sums), bit for bit", p.name, c.name, l, k, lv.st[k], want.levels[l].st[k])
+					}
+				}
+			}
+		}
+	}
+}
+
 // TestMultigridFusedSameBits checks that the fused passes of the finest level, serial or split
 // into chunks, compute exactly what the separate steps compute.
 func TestMultigridFusedSameBits(t *testing.T) {
