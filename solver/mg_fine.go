@@ -12,7 +12,7 @@ import (
 const (
 	fineInit     = iota // first step of a V-cycle from x = 0: x = b/A_uu on colour c, 0 elsewhere
 	fineSmooth          // Gauss–Seidel update of the rows of colour c
-	fineResidual        // r = b − A x on the padded grid, 0 on the rows of colour c
+	fineResidual        // r = b − A x on the padded grid, 0 on the rows of colour c (c ≥ 0)
 	fineProlong         // x += P x_c from the first coarse level
 	finePre             // fused, before the correction: init colour 0, smooth colour 1, residual
 	finePost            // fused, after it: prolong, smooth colour c, smooth the other colour
@@ -338,6 +338,9 @@ func (f *fineLevel) residualRow(j, skip int) {
 		xs, xw, xm, xe, xn, b = xs[:len(r)], xw[:len(r)], xm[:len(r)], xe[:len(r)], xn[:len(r)], b[:len(r)]
 		for q := range r {
 			r[q] = b[q] - (0 - xs[q] - xw[q] + 4*xm[q] - xe[q] - xn[q])
+		}
+		if skip < 0 {
+			continue
 		}
 		for q := uint(int(f.meta[u0])^skip) & 1; q < uint(len(r)); q += 2 {
 			r[q] = 0
