@@ -460,13 +460,15 @@ func (w *Workspace) BiCGStab(ctx context.Context, a Operator, b, x []float64, m 
 		st.Converged = true
 		return st, nil
 	}
-	w.k.copy(xBest, x)
+	// xBest holds the iterate of smallest recursive residual, bestRes, unless bestInX: then x
+	// is that iterate, and the next step that moves x saves it in the same pass.
+	bestInX := true
 	bestRes := rnorm / bnorm
 
 	// finish puts into x the better (by true residual) of x and xBest and records its residual.
 	finish := func(err error) (Stats, error) {
 		res := w.k.residual(a, t, b, x) / bnorm
-		if bestRes < res || !isFinite(res) {
+		if !bestInX && (bestRes < res || !isFinite(res)) {
 			if bres := w.k.residual(a, t, b, xBest) / bnorm; bres < res || !isFinite(res) {
 				w.k.copy(x, xBest)
 				res = bres
@@ -489,6 +491,7 @@ func (w *Workspace) BiCGStab(ctx context.Context, a Operator, b, x []float64, m 
 
 	fresh := true // start (again) from r with r̂ = r, p = r
 	var rho, rhoPrev, alpha, omega, rhatNorm float64
+	var rhoNext float64 // r̂·r of the residual the last step left, summed with that step
 	for it := 1; it <= cfg.MaxIterations; it++ {
 		if err := ctx.Err(); err != nil {
 			return finish(fmt.Errorf("solver: %s stopped after %d iterations: %w", method, st.Iterations, err))
@@ -497,7 +500,7 @@ func (w *Workspace) BiCGStab(ctx context.Context, a Operator, b, x []float64, m 
 
 		// ρ = r̂·r; p = r + β (p − ω v), β = (ρ/ρ_prev)(α/ω)
 		if !fresh {
-			rho = w.k.dot(rhat, r)
+			rho = rhoNext
 			if !isFinite(rho) {
 				return finish(fmt.Errorf("%w: %s: r̂·r = %g at iteration %d", ErrBreakdown, method, rho, it))
 			}
@@ -547,7 +550,13 @@ func (w *Workspace) BiCGStab(ctx context.Context, a Operator, b, x []float64, m 
 		}
 
 		// x += α p̂, s = r − α v (stored in r)
-		ss := w.k.step(x, r, alpha, phat, v)
+		var ss float64
+		if bestInX {
+			ss = w.k.stepSave(x, r, alpha, phat, v, xBest)
+			bestInX = false
+		} else {
+			ss = w.k.step(x, r, alpha, phat, v)
+		}
 		sres := math.Sqrt(ss) / bnorm
 		if !isFinite(sres) {
 			return finish(fmt.Errorf("%w: %s: residual %g at iteration %d", ErrBreakdown, method, sres, it))
@@ -584,15 +593,16 @@ func (w *Workspace) BiCGStab(ctx context.Context, a Operator, b, x []float64, m 
 		}
 		omega = ts / tt
 
-		// x += ω ŝ, r = s − ω t
-		rnorm = math.Sqrt(w.k.step(x, r, omega, shat, t))
+		// x += ω ŝ, r = s − ω t, and r̂·r for the next iteration
+		rr, rhoRR := w.k.stepDot(x, r, omega, shat, t, rhat)
+		rnorm, rhoNext = math.Sqrt(rr), rhoRR
 		res := rnorm / bnorm
 		if !isFinite(res) {
 			return finish(fmt.Errorf("%w: %s: residual %g at iteration %d", ErrBreakdown, method, res, it))
 		}
 		cfg.progress(it, res)
 		if res < bestRes {
-			w.k.copy(xBest, x)
+			bestInX = true
 			bestRes = res
 		}
 		if res <= cfg.Tolerance {

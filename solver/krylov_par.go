@@ -18,6 +18,8 @@ const (
 	kMulVec          // d = A x, s1 = y·d, s2 = d·d
 	kResidual        // d = y − A x, s1 = d·d
 	kStep            // x += α y, d −= α z, s1 = d·d (d is r, y is p, z is q)
+	kStepSave        // kStep, saving x in e first
+	kStepDot         // kStep, also s2 = e·d (e is r̂)
 	kCGDir           // d = x + β d (d is p, x is z)
 	kBiCGDir         // d = x + β (d − α y) (d is p, x is r, y is v, α is ω)
 	kCopy            // d = x
@@ -30,6 +32,7 @@ type kernels struct {
 	n           int
 	ro          rangeOperator
 	d, x, y, z  []float64
+	e           []float64
 	alpha, beta float64
 	s1, s2      []float64
 }
@@ -48,7 +51,7 @@ func (k *kernels) run(op, n int) (float64, float64) {
 		s1 += k.s1[b]
 		s2 += k.s2[b]
 	}
-	k.d, k.x, k.y, k.z, k.ro = nil, nil, nil, nil, nil
+	k.d, k.x, k.y, k.z, k.e, k.ro = nil, nil, nil, nil, nil, nil
 	return s1, s2
 }
 
@@ -66,6 +69,11 @@ func (k *kernels) runBlock(b int) {
 		s1 = k.ro.residualRange(k.d, k.y, k.x, lo, hi)
 	case kStep:
 		s1 = stepRange(k.x[lo:hi], k.d[lo:hi], k.alpha, k.y[lo:hi], k.z[lo:hi])
+	case kStepSave:
+		copy(k.e[lo:hi], k.x[lo:hi])
+		s1 = stepRange(k.x[lo:hi], k.d[lo:hi], k.alpha, k.y[lo:hi], k.z[lo:hi])
+	case kStepDot:
+		s1, s2 = stepDotRange(k.x[lo:hi], k.d[lo:hi], k.alpha, k.y[lo:hi], k.z[lo:hi], k.e[lo:hi])
 	case kCGDir:
 		ps := k.d[lo:hi]
 		zs := k.x[lo:hi]
@@ -98,6 +106,21 @@ func stepRange(xs, rs []float64, alpha float64, ps, qs []float64) float64 {
 		sq += ri * ri
 	}
 	return sq
+}
+
+// stepDotRange is stepRange that also returns e·r of the new r, summed in the same order as
+// dotRange(e, r) (the same bits).
+func stepDotRange(xs, rs []float64, alpha float64, ps, qs, es []float64) (float64, float64) {
+	rs, ps, qs, es = rs[:len(xs)], ps[:len(xs)], qs[:len(xs)], es[:len(xs)]
+	var sq, se float64
+	for i := range xs {
+		xs[i] += alpha * ps[i]
+		ri := rs[i] - alpha*qs[i]
+		rs[i] = ri
+		sq += ri * ri
+		se += es[i] * ri
+	}
+	return sq, se
 }
 
 // rangeOperator is an operator whose products and residuals can be formed on one block of rows
@@ -158,6 +181,19 @@ func (k *kernels) step(x, r []float64, alpha float64, p, q []float64) float64 {
 	k.x, k.d, k.alpha, k.y, k.z = x, r, alpha, p, q
 	s, _ := k.run(kStep, len(x))
 	return s
+}
+
+// stepSave is step that first copies x into save, in the same pass.
+func (k *kernels) stepSave(x, r []float64, alpha float64, p, q, save []float64) float64 {
+	k.x, k.d, k.alpha, k.y, k.z, k.e = x, r, alpha, p, q, save
+	s, _ := k.run(kStepSave, len(x))
+	return s
+}
+
+// stepDot is step that also returns e·r of the new r (the same bits as dot(e, r) after it).
+func (k *kernels) stepDot(x, r []float64, alpha float64, p, q, e []float64) (float64, float64) {
+	k.x, k.d, k.alpha, k.y, k.z, k.e = x, r, alpha, p, q, e
+	return k.run(kStepDot, len(x))
 }
 
 // cgDirection sets p = z + β p.
