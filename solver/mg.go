@@ -289,7 +289,7 @@ func (mg *Multigrid) PreconSolve(dst, r []float64) error {
 	f.x, f.b = dst, r
 
 	// Down: smooth, form the residual, restrict it.
-	fused := f.ncolour == 2 && mg.smooth == 1 && !mg.unfused
+	fused := f.ncolour == 2 && !mg.unfused
 	if fused {
 		mg.runFused(finePre, 0)
 	} else {
@@ -442,6 +442,7 @@ func (mg *Multigrid) runFine(op, c int) {
 func (mg *Multigrid) runFused(op, c int) {
 	f := mg.fine
 	f.op, f.c = op, c
+	f.nstage = 2*mg.smooth + 1
 	f.nchunk = 1
 	if f.nx*f.ny >= mg.minParallel {
 		f.nchunk = max(1, min(runtime.GOMAXPROCS(0), maxTeamWorkers, f.ny/8))

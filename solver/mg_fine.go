@@ -14,8 +14,8 @@ const (
 	fineSmooth          // Gauss–Seidel update of the rows of colour c
 	fineResidual        // r = b − A x on the padded grid, 0 on the rows of colour c (c ≥ 0)
 	fineProlong         // x += P x_c from the first coarse level
-	finePre             // fused, before the correction: init colour 0, smooth colour 1, residual
-	finePost            // fused, after it: prolong, smooth colour c, smooth the other colour
+	finePre             // fused, before the correction: init colour 0, smooth colours 1, 0, 1, …, residual
+	finePost            // fused, after it: prolong, smooth colours c, 1 − c, c, …
 )
 
 // fineLevel is the finest level of a Multigrid: the caller's matrix on the caller's unknowns.
@@ -36,6 +36,7 @@ type fineLevel struct {
 	blockRows int // grid rows per block
 	nblocks   int
 	nchunk    int // chunks of the current fused run
+	nstage    int // stages of the fused kernels: 2 per smoothing sweep, and 1
 	coarse    *gridLevel
 
 	// The current run: kernel, its colour, the caller's vectors.
@@ -159,17 +160,17 @@ func (f *fineLevel) runBlock(blk int) {
 	}
 }
 
-// The fused kernels run three stages in one pass over the rows, so that each row's matrix
-// entries are read once while they are in cache: stage 0 on row t, stage 1 on row t − 1 and
-// stage 2 on row t − 2, where stage k+1 on row j needs stage k done on rows j−1, j, j+1. Before
-// the coarse-grid correction the stages are the first red step from x = 0, the black step and
-// the residual; after it, the interpolation of the correction and the two colour steps. Each
-// step computes exactly what the separate kernels compute, from the same values.
+// The fused kernels run their stages in one pass over the rows, so that each row's matrix
+// entries are read once while they are in cache: stage k on row t − k, where stage k+1 on row j
+// needs stage k done on rows j−1, j, j+1. Before the coarse-grid correction the stages are the
+// first red step from x = 0, the smoothing's further colour steps and the residual; after it,
+// the interpolation of the correction and the colour steps (2 + 1 stages per sweep each side).
+// Each step computes exactly what the separate kernels compute, from the same values.
 //
 // In parallel, the rows are cut into one contiguous chunk per goroutine, of about equal numbers
 // of unknowns. A chunk's pipeline leaves out the rows that would need a neighbour chunk's rows:
-// stage 1 on its first and last rows, stage 2 on its first two and last two. finishPipeline does
-// those afterwards. Results are the same for any number of chunks.
+// stage k on its first k and last k rows. finishPipeline does those afterwards, stage by stage.
+// Results are the same for any number of chunks.
 
 // chunk returns the grid rows of chunk b of nchunk: from the first row whose unknowns start at
 // or after b·n/nchunk.
@@ -190,22 +191,21 @@ func (f *fineLevel) chunkStart(b int) int {
 // pipeline runs the stages of the current fused kernel on rows [j0, j1) as far as the chunk
 // alone allows.
 func (f *fineLevel) pipeline(j0, j1 int) {
-	for t := j0; t < j1+2; t++ {
+	for t := j0; t < j1+f.nstage-1; t++ {
 		if t < j1 {
 			f.stage(0, t)
 		}
-		if s := t - 1; s >= j0+1 && s <= j1-2 {
-			f.stage(1, s)
-		}
-		if s := t - 2; s >= j0+2 && s <= j1-3 {
-			f.stage(2, s)
+		for k := 1; k < f.nstage; k++ {
+			if s := t - k; s >= j0+k && s <= j1-1-k {
+				f.stage(k, s)
+			}
 		}
 	}
 }
 
 // finishPipeline runs the stages that the chunks' pipelines left out, in stage order.
 func (f *fineLevel) finishPipeline() {
-	for k := 1; k <= 2; k++ {
+	for k := 1; k < f.nstage; k++ {
 		for b := range f.nchunk {
 			j0, j1 := f.chunk(b)
 			for j := j0; j < j1; j++ {
@@ -217,18 +217,20 @@ func (f *fineLevel) finishPipeline() {
 	}
 }
 
-// stage runs stage k of the current fused kernel on row j.
+// stage runs stage k of the current fused kernel on row j. Before the correction: stage 0 the
+// first step (colour 0 from x = 0), then colours 1, 0, 1, … and last the residual, which skips
+// colour 1, updated last; after it: stage 0 the interpolation, then colours c, 1 − c, c, ….
 func (f *fineLevel) stage(k, j int) {
 	switch {
 	case f.op == finePre && k == 0:
 		f.initRows(j, j+1, 0)
-	case f.op == finePre && k == 1:
-		f.smoothRows(j, j+1, 1)
-	case f.op == finePre:
+	case f.op == finePre && k == f.nstage-1:
 		f.residualRow(j, 1)
+	case f.op == finePre:
+		f.smoothRows(j, j+1, k&1)
 	case k == 0:
 		f.prolongRow(j)
-	case k == 1:
+	case k&1 == 1:
 		f.smoothRows(j, j+1, f.c)
 	default:
 		f.smoothRows(j, j+1, 1-f.c)

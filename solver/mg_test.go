@@ -2,6 +2,7 @@ package solver
 
 import (
 	"context"
+	"fmt"
 	"math"
 	"math/rand/v2"
 	"runtime"
@@ -1111,7 +1112,7 @@ func TestMultigridUniformSameBits(t *testing.T) {
 }
 
 // TestMultigridFusedSameBits checks that the fused passes of the finest level, serial or split
-// into chunks, compute exactly what the separate steps compute.
+// into chunks, compute exactly what the separate steps compute, with one, two and three sweeps.
 func TestMultigridFusedSameBits(t *testing.T) {
 	sys := mgPassageStep.psi(t, 16000)
 	spd := mgSPD(sys)
@@ -1121,28 +1122,37 @@ func TestMultigridFusedSameBits(t *testing.T) {
 		a         *CSR
 		symmetric bool
 	}{{"psi", sys.A.CSR(), false}, {"spd", spd, true}} {
-		mg, err := NewMultigrid(c.a, sys.Mesh.Grid, sys.Nodes, MGOptions{Symmetric: c.symmetric})
-		if err != nil {
-			t.Fatal(err)
-		}
-		mg.minParallel = 0
-		want := make([]float64, c.a.N)
-		runtime.GOMAXPROCS(1)
-		mg.unfused = true
-		if err := mg.PreconSolve(want, sys.B0); err != nil {
-			t.Fatal(err)
-		}
-		mg.unfused = false
-		got := make([]float64, c.a.N)
-		for _, procs := range []int{1, 2, 5} {
-			runtime.GOMAXPROCS(procs)
-			if err := mg.PreconSolve(got, sys.B0); err != nil {
+		for smooth := 1; smooth <= 3; smooth++ {
+			mg, err := NewMultigrid(c.a, sys.Mesh.Grid, sys.Nodes, MGOptions{Symmetric: c.symmetric, Smooth: smooth})
+			if err != nil {
 				t.Fatal(err)
 			}
-			for q := range got {
-				if math.Float64bits(got[q]) != math.Float64bits(want[q]) {
-					t.Fatalf("%s, GOMAXPROCS %d: fused V-cycle gives %v at %d, want %v (separate steps), bit for bit", c.name, procs, got[q], q, want[q])
-				}
+			fusedSameBits(t, fmt.Sprintf("%s, %d sweeps", c.name, smooth), mg, sys.B0)
+		}
+	}
+}
+
+// fusedSameBits checks that mg's fused V-cycle, on 1, 2 and 5 goroutines, gives the bits of its
+// separate steps on one.
+func fusedSameBits(t *testing.T, name string, mg *Multigrid, b []float64) {
+	t.Helper()
+	mg.minParallel = 0
+	want := make([]float64, len(b))
+	runtime.GOMAXPROCS(1)
+	mg.unfused = true
+	if err := mg.PreconSolve(want, b); err != nil {
+		t.Fatal(err)
+	}
+	mg.unfused = false
+	got := make([]float64, len(b))
+	for _, procs := range []int{1, 2, 5} {
+		runtime.GOMAXPROCS(procs)
+		if err := mg.PreconSolve(got, b); err != nil {
+			t.Fatal(err)
+		}
+		for q := range got {
+			if math.Float64bits(got[q]) != math.Float64bits(want[q]) {
+				t.Fatalf("%s, GOMAXPROCS %d: fused V-cycle gives %v at %d, want %v (separate steps), bit for bit", name, procs, got[q], q, want[q])
 			}
 		}
 	}
