@@ -7,6 +7,8 @@ import (
 	"runtime"
 	"sync"
 
+	"phipsi/internal/pages"
+	"phipsi/internal/par"
 	"phipsi/mesh"
 )
 
@@ -104,6 +106,29 @@ func (b *GridBuilder) EndRow() {
 	b.row++
 }
 
+// EndPlainRow ends the current row, to which nothing has been added, as the plain stencil (4 on
+// the diagonal, −1 to the unknowns of the node's four grid neighbours: the row that adding those
+// entries and EndRow would store) and reports true. When the node does not admit the plain
+// stencil (a neighbour without an unknown, or with two) it changes nothing and reports false.
+func (b *GridBuilder) EndPlainRow() bool {
+	if b.done || b.row >= b.m.N {
+		panic("solver: GridBuilder.EndPlainRow: every row has been ended")
+	}
+	if len(b.col) > 0 {
+		panic(fmt.Sprintf("solver: GridBuilder.EndPlainRow: row %d already has entries", b.row))
+	}
+	u := b.row
+	if _, ok := b.m.plainColumns(u); !ok {
+		return false
+	}
+	if u&63 == 0 {
+		b.m.before[u>>6] = int32(len(b.m.restPtr) - 1)
+	}
+	b.m.plain[u>>6] |= 1 << (u & 63)
+	b.row++
+	return true
+}
+
 // Matrix returns the assembled matrix. It panics unless every row has been ended; the builder
 // cannot be used afterwards.
 func (b *GridBuilder) Matrix() *GridMatrix {
@@ -132,6 +157,45 @@ func (s *GridMatrix) other(u int) int {
 	return int(s.before[u>>6]) + bits.OnesCount64(^w&(bit-1))
 }
 
+// numberRowsMin is the number of grid rows from which numberUnknowns shares them out.
+const numberRowsMin = 64
+
+// numberUnknowns numbers the unknowns of grid g in node order, pieces(k) of them at node k (0 for
+// none): it sets unknown[k] to the first of node k's (−1 for none) and returns each unknown's
+// node. The rows are counted, then numbered, in ranges on several goroutines, each from the
+// count of the ranges before it.
+func numberUnknowns(g mesh.Grid, unknown []int32, pieces func(k int) int) []int32 {
+	nr := par.Ranges(g.NY, numberRowsMin)
+	start := make([]int, nr+1)
+	par.Rows(g.NY, numberRowsMin, func(r, lo, hi int) {
+		c := 0
+		for k := lo * g.NX; k < hi*g.NX; k++ {
+			c += pieces(k)
+		}
+		start[r+1] = c
+	})
+	for r := range nr {
+		start[r+1] += start[r]
+	}
+	nodes := pages.Make[int32](start[nr])
+	par.Rows(g.NY, numberRowsMin, func(r, lo, hi int) {
+		u := start[r]
+		for k := lo * g.NX; k < hi*g.NX; k++ {
+			p := pieces(k)
+			if p == 0 {
+				unknown[k] = -1
+				continue
+			}
+			unknown[k] = int32(u)
+			for range p {
+				nodes[u] = int32(k)
+				u++
+			}
+		}
+	})
+	return nodes
+}
+
 // buildRowsMin is the number of rows from which assembly shares them among goroutines.
 const buildRowsMin = 1 << 16
 
@@ -145,8 +209,8 @@ func rowRanges(n int) int {
 
 // buildRows assembles the GridMatrix on the unknowns nodes by calling row(b, r, u) for every
 // unknown u, in order within each of nr ranges of rows, the ranges on goroutines of their own; r
-// is u's range. row adds row u's entries with b.Add (buildRows ends the row) and may write state
-// of row u or of range r alone. The ranges start at multiples of 64 rows, so each owns its words
+// is u's range. row adds row u's entries with b.Add (buildRows ends the row), or ends it as the
+// plain stencil with b.EndPlainRow, and may write state of row u or of range r alone. The ranges start at multiples of 64 rows, so each owns its words
 // of the plain bitset, and their other rows are joined in range order: the matrix is a
 // GridBuilder's, whatever the number of ranges. The first error in range order is returned.
 func buildRows(g mesh.Grid, nodes, unknown []int32, nr int, row func(b *GridBuilder, r, u int) error) (*GridMatrix, error) {
@@ -170,7 +234,9 @@ func buildRows(g mesh.Grid, nodes, unknown []int32, nr int, row func(b *GridBuil
 					errs[r] = err
 					return
 				}
-				b.EndRow()
+				if b.row == u { // not ended by EndPlainRow
+					b.EndRow()
+				}
 			}
 		})
 	}
@@ -226,17 +292,8 @@ func (s *GridMatrix) isPlain(u int, cols []int32, vals []float64) bool {
 	if len(cols) != 5 || len(vals) != 5 {
 		return false
 	}
-	nx := s.grid.NX
-	k := int(s.nodes[u])
-	i := k % nx
-	if i == 0 || i == nx-1 || k < nx || k+nx >= len(s.unknown) || u == 0 || u == s.N-1 {
-		return false
-	}
-	if s.nodes[u-1] != int32(k-1) || s.nodes[u+1] != int32(k+1) {
-		return false
-	}
-	want := [5]int32{s.unknown[k-nx], int32(u - 1), int32(u), int32(u + 1), s.unknown[k+nx]}
-	if want[0] < 0 || want[4] < 0 || s.nodes[want[0]] != int32(k-nx) || s.nodes[want[4]] != int32(k+nx) {
+	want, ok := s.plainColumns(u)
+	if !ok {
 		return false
 	}
 	for q, c := range cols {
@@ -249,6 +306,26 @@ func (s *GridMatrix) isPlain(u int, cols []int32, vals []float64) bool {
 		}
 	}
 	return true
+}
+
+// plainColumns returns the columns of the plain stencil of row u, in ascending order (south,
+// west, the node, east, north), and whether the row's node admits it: it and its four grid
+// neighbours each carry one unknown.
+func (s *GridMatrix) plainColumns(u int) ([5]int32, bool) {
+	nx := s.grid.NX
+	k := int(s.nodes[u])
+	i := k % nx
+	if i == 0 || i == nx-1 || k < nx || k+nx >= len(s.unknown) || u == 0 || u == s.N-1 {
+		return [5]int32{}, false
+	}
+	if s.nodes[u-1] != int32(k-1) || s.nodes[u+1] != int32(k+1) {
+		return [5]int32{}, false
+	}
+	want := [5]int32{s.unknown[k-nx], int32(u - 1), int32(u), int32(u + 1), s.unknown[k+nx]}
+	if want[0] < 0 || want[4] < 0 || s.nodes[want[0]] != int32(k-nx) || s.nodes[want[4]] != int32(k+nx) {
+		return [5]int32{}, false
+	}
+	return want, true
 }
 
 // Len returns the number of rows (and columns).

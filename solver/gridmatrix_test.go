@@ -122,3 +122,75 @@ func TestBuildRowsThreads(t *testing.T) {
 		}
 	}
 }
+
+// TestEndPlainRow checks that EndPlainRow stores the plain stencil where the node admits it, the
+// same matrix as adding the entries, refuses at the grid's edge without changing anything, and
+// panics on a row that already has entries.
+func TestEndPlainRow(t *testing.T) {
+	g := mesh.Grid{H: 1, NX: 3, NY: 3}
+	nodes := make([]int32, g.Len())
+	unknown := make([]int32, g.Len())
+	for k := range nodes {
+		nodes[k], unknown[k] = int32(k), int32(k)
+	}
+	build := func(direct bool) *GridMatrix {
+		b := NewGridBuilder(g, nodes, unknown)
+		for u := range g.Len() {
+			if direct && b.EndPlainRow() {
+				if u != 4 {
+					t.Fatalf("row %d: EndPlainRow took an edge node", u)
+				}
+				continue
+			}
+			if direct && u == 4 {
+				t.Fatal("row 4: EndPlainRow refused the centre node")
+			}
+			if u == 4 {
+				for _, v := range []int{1, 3, 5, 7} {
+					b.Add(v, -1)
+				}
+			}
+			b.Add(u, 4)
+			b.EndRow()
+		}
+		return b.Matrix()
+	}
+	want, got := build(false), build(true)
+	if want.Plain() != 1 || got.Plain() != 1 {
+		t.Fatalf("plain rows: got %d, want 1 (the added entries give %d)", got.Plain(), want.Plain())
+	}
+	a, b := want.CSR(), got.CSR()
+	if !slices.Equal(a.RowPtr, b.RowPtr) || !slices.Equal(a.Col, b.Col) || !slices.Equal(a.Val, b.Val) {
+		t.Error("the matrices differ")
+	}
+	bld := NewGridBuilder(g, nodes, unknown)
+	bld.Add(0, 1)
+	expectPanic(t, "already has entries", func() { bld.EndPlainRow() })
+}
+
+// TestNumberUnknowns checks the numbering against a serial count, with nodes of no, one and two
+// unknowns, on 1, 2 and 3 goroutines.
+func TestNumberUnknowns(t *testing.T) {
+	g := mesh.Grid{H: 1, NX: 37, NY: 3 * numberRowsMin}
+	pieces := func(k int) int { return (k * 7 % 5) % 3 } // 0, 1 or 2
+	var want []int32
+	wantFirst := make([]int32, g.Len())
+	for k := range g.Len() {
+		wantFirst[k] = -1
+		if pieces(k) > 0 {
+			wantFirst[k] = int32(len(want))
+		}
+		for range pieces(k) {
+			want = append(want, int32(k))
+		}
+	}
+	defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(0))
+	for _, procs := range []int{1, 2, 3} {
+		runtime.GOMAXPROCS(procs)
+		first := make([]int32, g.Len())
+		got := numberUnknowns(g, first, pieces)
+		if !slices.Equal(got, want) || !slices.Equal(first, wantFirst) {
+			t.Errorf("GOMAXPROCS %d: the numbering differs from the serial one", procs)
+		}
+	}
+}

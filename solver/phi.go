@@ -298,49 +298,41 @@ func AssemblePhi(m *mesh.Mesh, s *bc.Set, circulation []float64, opt *PhiOptions
 		Dirichlet: pages.Make[bool](n), known: map[int32]float64{}}
 
 	// Prescribed values: the outlet column, or the whole outer ring with Outer.
-	for j := range g.NY {
-		for i := range g.NX {
-			k := g.Index(i, j)
-			switch {
-			case o.Outer != nil:
-				if i == 0 || i == g.NX-1 || j == 0 || j == g.NY-1 {
-					v := o.Outer(g.At(i, j))
-					if !isFinite(v) {
-						return nil, fmt.Errorf("solver: PhiOptions.Outer at (%g, %g) is not finite", g.X(i), g.Y(j))
-					}
-					sys.Dirichlet[k] = true
-					if v != 0 {
-						sys.known[int32(k)] = v
-					}
+	if o.Outer == nil {
+		for j := range g.NY {
+			k := g.Index(g.NX-1, j)
+			sys.Dirichlet[k] = true
+			for _, c := range cuts {
+				if c.ToOutlet && j <= c.Row && c.Circulation != 0 {
+					sys.known[int32(k)] += c.Circulation
 				}
-			case i == g.NX-1:
+			}
+		}
+	} else {
+		for j := range g.NY {
+			for i := range g.NX {
+				if i != 0 && i != g.NX-1 && j != 0 && j != g.NY-1 {
+					continue
+				}
+				k := g.Index(i, j)
+				v := o.Outer(g.At(i, j))
+				if !isFinite(v) {
+					return nil, fmt.Errorf("solver: PhiOptions.Outer at (%g, %g) is not finite", g.X(i), g.Y(j))
+				}
 				sys.Dirichlet[k] = true
-				for _, c := range cuts {
-					if c.ToOutlet && j <= c.Row && c.Circulation != 0 {
-						sys.known[int32(k)] += c.Circulation
-					}
+				if v != 0 {
+					sys.known[int32(k)] = v
 				}
 			}
 		}
 	}
 	// Unknowns: every piece of every cell whose value is not prescribed.
-	count := 0
-	for k := range n {
-		if !sys.Dirichlet[k] {
-			count += faces.Pieces(k)
+	sys.Nodes = numberUnknowns(g, sys.Unknown, func(k int) int {
+		if sys.Dirichlet[k] {
+			return 0
 		}
-	}
-	sys.Nodes = pages.Make[int32](count)[:0]
-	for k := range n {
-		sys.Unknown[k] = -1
-		if sys.Dirichlet[k] || faces.Pieces(k) == 0 {
-			continue
-		}
-		sys.Unknown[k] = int32(len(sys.Nodes))
-		for range faces.Pieces(k) {
-			sys.Nodes = append(sys.Nodes, int32(k))
-		}
-	}
+		return faces.Pieces(k)
+	})
 	nu := len(sys.Nodes)
 	if nu == 0 {
 		return nil, fmt.Errorf("solver: the φ problem has no unknowns")
@@ -364,7 +356,11 @@ func AssemblePhi(m *mesh.Mesh, s *bc.Set, circulation []float64, opt *PhiOptions
 		i, j := k%g.NX, k/g.NX
 		if phiDirectRows && piece == 0 && !cutRow[j] && !cutCol[i] && sys.wholeInterior(i, j) {
 			// Four whole faces (α = 1) to unknowns, no cut: the general loop below would add
-			// the same entries in the same order, with nothing added to B.
+			// −1 to each neighbour and 4 on the diagonal, with nothing added to B, which is
+			// the plain stencil when each neighbour has one unknown.
+			if bld.EndPlainRow() {
+				return nil
+			}
 			for _, nb := range [4]int{k - 1, k + 1, k - g.NX, k + g.NX} {
 				bld.Add(int(sys.Unknown[nb]), -1)
 			}

@@ -4,6 +4,7 @@ import (
 	"context"
 	"math"
 	"math/rand/v2"
+	"slices"
 	"testing"
 
 	"gonum.org/v1/gonum/mat"
@@ -291,6 +292,67 @@ func TestBorderedAgreesWithSuperposition(t *testing.T) {
 				its += st.Iterations
 			}
 			t.Logf("bordered: %d iterations; superposed: %d in %d solves; constants %v", bd.Solves[0].Iterations, its, len(sp.Solves), bd.BodyPsi)
+		})
+	}
+}
+
+// TestPsiPlainRowsSameBits checks that the rows AssemblePsi ends as plain rows directly are those
+// of the general path, bit for bit (matrix, B0 and each body's right-hand side), on grids with a
+// lifting cylinder, a plate that splits cells, and a prescribed outer ring with prescribed body
+// values.
+func TestPsiPlainRowsSameBits(t *testing.T) {
+	plate, err := mesh.NewRectangle(mesh.Point{X: 0.6, Y: 0.5 + 0.21*0.05}, 0.3, 0.3*0.05, 0.05, 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	circle := mesh.NewCircle(mesh.Point{X: 0.61, Y: 0.47}, 0.17)
+	ring := func(p mesh.Point) float64 { return 0.9*p.Y + 0.1*p.X }
+	tests := []struct {
+		name   string
+		bodies []mesh.Body
+		outer  bool
+	}{
+		{"cylinder", []mesh.Body{{Name: "c", Shape: circle}}, false},
+		{"thin plate", []mesh.Body{{Name: "p", Shape: plate}}, false},
+		{"cylinder in a prescribed ring", []mesh.Body{{Name: "c", Shape: circle}}, true},
+	}
+	bits := func(v []float64) []uint64 {
+		out := make([]uint64, len(v))
+		for q, x := range v {
+			out[q] = math.Float64bits(x)
+		}
+		return out
+	}
+	defer func() { psiPlainRows = true }()
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			m := phiMesh(t, 1.5, 0, 1, 0.025, tt.bodies...)
+			s := phiBC(t, m, 0.9)
+			if tt.outer {
+				s.Outer, s.Prescribed = ring, ring
+			}
+			var sys [2]*PsiSystem
+			for q, direct := range []bool{false, true} {
+				psiPlainRows = direct
+				if sys[q], err = AssemblePsi(m, s); err != nil {
+					t.Fatal(err)
+				}
+			}
+			if sys[1].A.Plain() == 0 {
+				t.Fatal("no plain row: the case does not test the direct rows")
+			}
+			a, b := sys[0].A.CSR(), sys[1].A.CSR()
+			if !slices.Equal(a.RowPtr, b.RowPtr) || !slices.Equal(a.Col, b.Col) || !slices.Equal(bits(a.Val), bits(b.Val)) || sys[0].A.Plain() != sys[1].A.Plain() {
+				t.Error("the matrices differ")
+			}
+			if !slices.Equal(bits(sys[0].B0), bits(sys[1].B0)) || len(sys[0].BK) != len(sys[1].BK) {
+				t.Fatal("the right-hand sides differ")
+			}
+			for k := range sys[0].BK {
+				if !slices.Equal(sys[0].BK[k].Index, sys[1].BK[k].Index) || !slices.Equal(bits(sys[0].BK[k].Val), bits(sys[1].BK[k].Val)) {
+					t.Errorf("body %d: the right-hand sides differ", k)
+				}
+			}
 		})
 	}
 }
