@@ -171,15 +171,23 @@ func (r *Result) Clearance(k int, ds float64) (wall, body float64) {
 	box := geo.Bodies[k].Shape.Bounds()
 	// nearest is the least distance from q to the body's samples, or best when no sample can be
 	// nearer than best: the samples lie in the body's box, so the distance from q to the box
-	// bounds them all from below.
+	// bounds them all from below. Squared distances pick the nearest sample, whose distance is
+	// then taken by Norm (two samples whose distances tie within rounding may swap, an ulp apart).
 	nearest := func(q mesh.Point, best float64) float64 {
 		dx := math.Max(0, math.Max(box.Min.X-q.X, q.X-box.Max.X))
 		dy := math.Max(0, math.Max(box.Min.Y-q.Y, q.Y-box.Max.Y))
 		if math.Hypot(dx, dy) >= best {
 			return best
 		}
-		for _, p := range own {
-			best = math.Min(best, p.P.Sub(q).Norm())
+		near, d2 := -1, math.Inf(1)
+		for i, p := range own {
+			ex, ey := p.P.X-q.X, p.P.Y-q.Y
+			if e2 := ex*ex + ey*ey; e2 < d2 {
+				near, d2 = i, e2
+			}
+		}
+		if near >= 0 {
+			best = math.Min(best, own[near].P.Sub(q).Norm())
 		}
 		return best
 	}
