@@ -86,7 +86,37 @@ func (r *Result) surface(id int) (Surface, error) {
 	m := r.Sol.Sys.Mesh
 	h := m.Grid.H
 	s := Surface{Name: m.BoundaryName(id), Boundary: id}
-	for _, sp := range m.Sample(id, h) {
+	samples := m.Sample(id, h)
+	// The samples are evaluated in contiguous ranges on several goroutines, each range's points
+	// kept apart and joined in order, the first error in order reported.
+	nr := par.Ranges(len(samples), surfaceSamplesMin)
+	parts := make([][]SurfaceValue, nr)
+	errs := make([]error, nr)
+	par.Rows(len(samples), surfaceSamplesMin, func(q, lo, hi int) {
+		parts[q], errs[q] = r.surfaceRange(id, s.Name, samples[lo:hi])
+	})
+	for q := range parts {
+		if errs[q] != nil {
+			return s, errs[q]
+		}
+		s.Points = append(s.Points, parts[q]...)
+	}
+	if len(s.Points) == 0 {
+		return s, fmt.Errorf("flow: %s: no surface point could be evaluated; refine the grid", s.Name)
+	}
+	return s, nil
+}
+
+// surfaceSamplesMin is the number of boundary samples from which surface shares them out.
+const surfaceSamplesMin = 256
+
+// surfaceRange evaluates the velocity and pressure at the boundary samples of boundary id (named
+// name), skipping those outside the channel and those no fluid node can see.
+func (r *Result) surfaceRange(id int, name string, samples []mesh.SurfacePoint) ([]SurfaceValue, error) {
+	m := r.Sol.Sys.Mesh
+	h := m.Grid.H
+	var out []SurfaceValue
+	for _, sp := range samples {
 		if sp.P.X < 0 || sp.P.X > m.Geom.Length {
 			continue
 		}
@@ -110,14 +140,11 @@ func (r *Result) surface(id int) (Surface, error) {
 		speed := math.Abs(dn)
 		v := SurfaceValue{SurfacePoint: sp, VT: vt, Speed: speed, Cp: r.Cp(speed), Pressure: r.Pressure(speed)}
 		if !finite(v.Speed) || !finite(v.Pressure) {
-			return s, fmt.Errorf("flow: %s: speed at (%g, %g) is not finite", s.Name, sp.P.X, sp.P.Y)
+			return out, fmt.Errorf("flow: %s: speed at (%g, %g) is not finite", name, sp.P.X, sp.P.Y)
 		}
-		s.Points = append(s.Points, v)
+		out = append(out, v)
 	}
-	if len(s.Points) == 0 {
-		return s, fmt.Errorf("flow: %s: no surface point could be evaluated; refine the grid", s.Name)
-	}
-	return s, nil
+	return out, nil
 }
 
 func finite(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }

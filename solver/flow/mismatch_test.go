@@ -3,6 +3,8 @@ package flow
 import (
 	"context"
 	"math"
+	"reflect"
+	"runtime"
 	"strings"
 	"testing"
 
@@ -280,5 +282,29 @@ func TestVelocityFastSameBits(t *testing.T) {
 	// The cut must change φ's differences across it: its row's nodes are not all continuous.
 	if c.Circulation == 0 {
 		t.Errorf("the Kutta foil has no circulation")
+	}
+}
+
+// TestSurfacesSameOnAnyThreads checks that the surface values do not depend on the number of
+// goroutines that evaluate the boundary samples.
+func TestSurfacesSameOnAnyThreads(t *testing.T) {
+	foil, err := mesh.NACA4("2412", 0.4, mesh.Point{X: 1.6, Y: 0.52}, 4*math.Pi/180, 100)
+	if err != nil {
+		t.Fatal(err)
+	}
+	r := crSolve(t, 4, wall(0, 0, 4, 0), wall(0, 1, 4, 1), false, 0.005, 1, []mesh.Body{{Name: "foil", Shape: foil}}, []bc.Body{{Kutta: true}})
+	if n := len(r.res.Surfaces[0].Points); n < 2*surfaceSamplesMin {
+		t.Fatalf("%d wall points: too few to share", n)
+	}
+	defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(0))
+	for _, procs := range []int{1, 2, 3} {
+		runtime.GOMAXPROCS(procs)
+		got, err := Derive(r.res.Sol, r.res.Fluid)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if !reflect.DeepEqual(got.Surfaces, r.res.Surfaces) {
+			t.Errorf("GOMAXPROCS %d: the surfaces differ", procs)
+		}
 	}
 }
