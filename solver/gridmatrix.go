@@ -118,7 +118,9 @@ func (b *GridBuilder) EndPlainRow() bool {
 		panic(fmt.Sprintf("solver: GridBuilder.EndPlainRow: row %d already has entries", b.row))
 	}
 	u := b.row
-	if _, ok := b.m.plainColumns(u); !ok {
+	// plainColumns takes the unknown before u as the west neighbour's; the row's west entry is
+	// that node's first unknown, so it must have only one.
+	if _, ok := b.m.plainColumns(u); !ok || b.m.unknown[b.m.nodes[u]-1] != int32(u-1) {
 		return false
 	}
 	if u&63 == 0 {
@@ -309,8 +311,8 @@ func (s *GridMatrix) isPlain(u int, cols []int32, vals []float64) bool {
 }
 
 // plainColumns returns the columns of the plain stencil of row u, in ascending order (south,
-// west, the node, east, north), and whether the row's node admits it: it and its four grid
-// neighbours each carry one unknown.
+// west, the node, east, north), and whether the row's node admits it: the unknowns next to u
+// lie at the west and east nodes, and the south and north nodes carry unknowns (their first).
 func (s *GridMatrix) plainColumns(u int) ([5]int32, bool) {
 	nx := s.grid.NX
 	k := int(s.nodes[u])

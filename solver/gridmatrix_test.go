@@ -124,8 +124,8 @@ func TestBuildRowsThreads(t *testing.T) {
 }
 
 // TestEndPlainRow checks that EndPlainRow stores the plain stencil where the node admits it, the
-// same matrix as adding the entries, refuses at the grid's edge without changing anything, and
-// panics on a row that already has entries.
+// same matrix as adding the entries, refuses at the grid's edge and beside a node with two
+// unknowns without changing anything, and panics on a row that already has entries.
 func TestEndPlainRow(t *testing.T) {
 	g := mesh.Grid{H: 1, NX: 3, NY: 3}
 	nodes := make([]int32, g.Len())
@@ -166,6 +166,23 @@ func TestEndPlainRow(t *testing.T) {
 	bld := NewGridBuilder(g, nodes, unknown)
 	bld.Add(0, 1)
 	expectPanic(t, "already has entries", func() { bld.EndPlainRow() })
+
+	// A west neighbour with two unknowns (a split cell): the row's west entry would be the
+	// neighbour's first unknown, not the one before the row's own.
+	g = mesh.Grid{H: 1, NX: 4, NY: 3}
+	nodes = []int32{0, 1, 2, 3, 4, 5, 5, 6, 7, 8, 9, 10, 11}
+	unknown = make([]int32, g.Len())
+	for u := len(nodes) - 1; u >= 0; u-- {
+		unknown[nodes[u]] = int32(u)
+	}
+	bld = NewGridBuilder(g, nodes, unknown)
+	for u := range nodes {
+		if bld.EndPlainRow() {
+			t.Fatalf("row %d (node %d): EndPlainRow took it, want no plain row on this grid", u, nodes[u])
+		}
+		bld.Add(u, 1)
+		bld.EndRow()
+	}
 }
 
 // TestNumberUnknowns checks the numbering against a serial count, with nodes of no, one and two

@@ -316,13 +316,6 @@ func TestPsiPlainRowsSameBits(t *testing.T) {
 		{"thin plate", []mesh.Body{{Name: "p", Shape: plate}}, false},
 		{"cylinder in a prescribed ring", []mesh.Body{{Name: "c", Shape: circle}}, true},
 	}
-	bits := func(v []float64) []uint64 {
-		out := make([]uint64, len(v))
-		for q, x := range v {
-			out[q] = math.Float64bits(x)
-		}
-		return out
-	}
 	defer func() { psiPlainRows = true }()
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
@@ -342,14 +335,14 @@ func TestPsiPlainRowsSameBits(t *testing.T) {
 				t.Fatal("no plain row: the case does not test the direct rows")
 			}
 			a, b := sys[0].A.CSR(), sys[1].A.CSR()
-			if !slices.Equal(a.RowPtr, b.RowPtr) || !slices.Equal(a.Col, b.Col) || !slices.Equal(bits(a.Val), bits(b.Val)) || sys[0].A.Plain() != sys[1].A.Plain() {
+			if !slices.Equal(a.RowPtr, b.RowPtr) || !slices.Equal(a.Col, b.Col) || !sameBits(a.Val, b.Val) || sys[0].A.Plain() != sys[1].A.Plain() {
 				t.Error("the matrices differ")
 			}
-			if !slices.Equal(bits(sys[0].B0), bits(sys[1].B0)) || len(sys[0].BK) != len(sys[1].BK) {
+			if !sameBits(sys[0].B0, sys[1].B0) || len(sys[0].BK) != len(sys[1].BK) {
 				t.Fatal("the right-hand sides differ")
 			}
 			for k := range sys[0].BK {
-				if !slices.Equal(sys[0].BK[k].Index, sys[1].BK[k].Index) || !slices.Equal(bits(sys[0].BK[k].Val), bits(sys[1].BK[k].Val)) {
+				if !slices.Equal(sys[0].BK[k].Index, sys[1].BK[k].Index) || !sameBits(sys[0].BK[k].Val, sys[1].BK[k].Val) {
 					t.Errorf("body %d: the right-hand sides differ", k)
 				}
 			}
