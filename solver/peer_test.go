@@ -394,16 +394,19 @@ func peerPipeline(ctx context.Context, spacing float64) (peerPipelineRun, error)
 //	residual b − A x   M + 3v                        b and x read, r written
 //	dot product        2v; axpy-like update 3v; x += αp, r −= αq with ‖r‖²: 6v; copy 2v
 //
-// BiCGStab (krylov.go), per iteration: r̂·r and p = r + β(p − ωv) 6v; M⁻¹p; v = A p̂ with r̂·v, v·v;
-// x += αp̂, s = r − αv 6v; M⁻¹s; t = A ŝ with t·s, t·t; x += ωŝ, r = s − ωt 6v; the copy of the
-// best iterate 2v. Per solve: ‖b‖ v, the first and the final true residual, the first copy of
-// the best iterate; per restart one true residual. (The first iteration's fresh start copies r
-// into r̂ and p and takes one dot product, 6v, as much as a regular step.)
+// BiCGStab (krylov.go), per iteration: p = r + β(p − ωv) 4v; M⁻¹p; v = A p̂ with r̂·v, v·v;
+// x += αp̂, s = r − αv, saving the best iterate on the way 7v; M⁻¹s; t = A ŝ with t·s, t·t;
+// x += ωŝ, r = s − ωt with r̂·r 7v. Per solve: ‖b‖ v, the first and the final true residual;
+// per restart one true residual. (The first iteration's fresh start copies r into r̂ and p and
+// takes one dot product, 6v, about a regular direction update.)
 //
 // CG, per iteration: q = A p with p·q (M + 2v, p read once); x += αp, r −= αq 6v; M⁻¹r;
 // r·z 2v; p = z + βp 3v; the last iteration stops after its step. Per solve: ‖b‖, the first
 // residual, the first M⁻¹r with p = z and r·z, the final true residual; per restart one true
-// residual and one fresh start.
+// residual and one fresh start. SolvePhi's full-multigrid pass before it (Multigrid.Guess): one
+// fine residual, the coarse levels' restrictions down, a coarse V-cycle from every level up with
+// its interpolation and residual (about twice the coarse part of one V-cycle), the correction
+// interpolated into x (2v).
 //
 // V-cycle (mg.go, mg_fine.go, mg_grid.go), for the fused red–black path with one sweep that
 // every five-point system takes. The finest level is two passes over its rows: before the
@@ -419,6 +422,7 @@ func peerPipeline(ctx context.Context, spacing float64) (peerPipelineRun, error)
 // restriction and its dense inverse, 8n² + 28n for n unknowns.
 type peerTraffic struct {
 	matrix, vector, vcycle float64 // bytes of one pass over A, one vector, one V-cycle
+	coarse                 float64 // bytes of the coarse levels' part of one V-cycle
 }
 
 // stencilBytes is the size of one coarse-level stencil: nine float32.
@@ -439,6 +443,7 @@ func newPeerTraffic(a *GridMatrix, mg *Multigrid) (peerTraffic, error) {
 	vc := tr.matrix + n*(1+8+8+8) // before the correction
 	vc += tr.matrix + n*(1+8+16) + 8*float64(len(mg.levels[0].x))
 	above := float64(f.stride * (f.ny + 3)) // the padded residual grid of the finest level
+	fine := vc
 	for l, lv := range mg.levels {
 		p := float64(len(lv.x))
 		vc += 8*above + 8*p
@@ -460,6 +465,7 @@ func newPeerTraffic(a *GridMatrix, mg *Multigrid) (peerTraffic, error) {
 		above = p
 	}
 	tr.vcycle = vc
+	tr.coarse = vc - fine
 	return tr, nil
 }
 
@@ -470,8 +476,8 @@ func (tr peerTraffic) residual() float64 { return tr.matrix + 3*tr.vector }
 func (tr peerTraffic) bicgstab(st Stats) float64 {
 	v := tr.vector
 	mul := tr.matrix + 3*v
-	iter := 6*v + tr.vcycle + mul + 6*v + tr.vcycle + mul + 6*v + 2*v
-	fixed := v + 2*tr.residual() + 2*v
+	iter := 4*v + tr.vcycle + mul + 7*v + tr.vcycle + mul + 7*v
+	fixed := v + 2*tr.residual()
 	return fixed + float64(st.Restarts)*tr.residual() + float64(st.Iterations)*iter
 }
 
@@ -537,7 +543,8 @@ func peerPhiTraffic(sol *PhiSolution) (peerBandwidth, error) {
 	if err != nil {
 		return peerBandwidth{}, err
 	}
-	return peerBandwidth{bytes: tr.cg(sol.Stats), seconds: sol.Solve.Seconds(), iters: sol.Stats.Iterations, solves: 1}, nil
+	guess := tr.residual() + 2*tr.coarse + 2*tr.vector
+	return peerBandwidth{bytes: guess + tr.cg(sol.Stats), seconds: sol.Solve.Seconds(), iters: sol.Stats.Iterations, solves: 1}, nil
 }
 
 // peerSeconds returns the median of the durations, seconds.
