@@ -488,16 +488,23 @@ func TestReleasedSystemsRefuseSolves(t *testing.T) {
 	}
 }
 
+// fastPathShapes returns the bodies of the fast-path comparisons on the 1.5 × 1 channel of spacing
+// 0.025: a thin plate that splits cells and a large circle.
+func fastPathShapes(t *testing.T) (plate, circle mesh.Shape) {
+	t.Helper()
+	plate, err := mesh.NewRectangle(mesh.Point{X: 0.6, Y: 0.5 + 0.21*0.05}, 0.3, 0.3*0.05, 0.05, 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return plate, mesh.NewCircle(mesh.Point{X: 0.61, Y: 0.47}, 0.17)
+}
+
 // TestPhiDirectRowsSameBits checks that the rows AssemblePhi writes directly for interior cells
 // with four whole faces are those of the general face loop, bit for bit (matrix, right-hand side
 // and inflow), on grids with a cut across them, a plate that splits cells, and a prescribed
 // outer ring.
 func TestPhiDirectRowsSameBits(t *testing.T) {
-	plate, err := mesh.NewRectangle(mesh.Point{X: 0.6, Y: 0.5 + 0.21*0.05}, 0.3, 0.3*0.05, 0.05, 0)
-	if err != nil {
-		t.Fatal(err)
-	}
-	circle := mesh.NewCircle(mesh.Point{X: 0.61, Y: 0.47}, 0.17)
+	plate, circle := fastPathShapes(t)
 	outer := func(p mesh.Point) float64 { return 0.9*p.X + 0.1*p.Y }
 	tests := []struct {
 		name   string

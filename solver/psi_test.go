@@ -301,11 +301,7 @@ func TestBorderedAgreesWithSuperposition(t *testing.T) {
 // lifting cylinder, a plate that splits cells, and a prescribed outer ring with prescribed body
 // values.
 func TestPsiPlainRowsSameBits(t *testing.T) {
-	plate, err := mesh.NewRectangle(mesh.Point{X: 0.6, Y: 0.5 + 0.21*0.05}, 0.3, 0.3*0.05, 0.05, 0)
-	if err != nil {
-		t.Fatal(err)
-	}
-	circle := mesh.NewCircle(mesh.Point{X: 0.61, Y: 0.47}, 0.17)
+	plate, circle := fastPathShapes(t)
 	ring := func(p mesh.Point) float64 { return 0.9*p.Y + 0.1*p.X }
 	tests := []struct {
 		name   string
@@ -327,6 +323,7 @@ func TestPsiPlainRowsSameBits(t *testing.T) {
 			var sys [2]*PsiSystem
 			for q, direct := range []bool{false, true} {
 				psiPlainRows = direct
+				var err error
 				if sys[q], err = AssemblePsi(m, s); err != nil {
 					t.Fatal(err)
 				}
