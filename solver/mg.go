@@ -475,7 +475,7 @@ func (mg *Multigrid) setupStencils(l, size int) []stencil64 {
 		if l == 1 {
 			off = 9 * len(mg.regions[0])
 		}
-		if rest := len(mg.scratch) - off; off <= len(mg.scratch) && rest >= 9*size {
+		if len(mg.scratch)-off >= 9*size { // off ≤ len(mg.scratch): region 0 came from it
 			*r = asStencils(mg.scratch[off : off+9*size])
 		}
 	}
