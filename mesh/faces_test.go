@@ -315,3 +315,53 @@ func TestFacesSameOnAnyThreads(t *testing.T) {
 		}
 	}
 }
+
+// TestFacesFastSameAsGeneral checks that the tiled vertical lines and the shortcuts for faces
+// inside one open interval or outside all (facesFast) give every face the same parts, pieces
+// included, and every cell the same pieces as one line at a time with every face clipped: on the
+// grid of TestFacesSameOnAnyThreads, with more lines than one tile and a last tile cut short.
+func TestFacesFastSameAsGeneral(t *testing.T) {
+	const h = 1.0 / 300
+	plate, err := NewRectangle(Point{0.9, 0.5 + 0.2*h}, 0.3, 0.3*h, 0, 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	circle := NewCircle(Point{0.4, 0.45}, 0.12)
+	lower := []Point{{0, 0}, {0.6, 0.03}, {1.5, 0}}
+	m := facesMesh(t, 1.5, lower, flat(1, 1.5), true, 0, 1, h, Body{"circle", circle}, Body{"plate", plate})
+	if m.NX%faceTile == 0 || m.NX < 2*faceTile {
+		t.Fatalf("%d columns: want more than two tiles of %d and a short last one", m.NX, faceTile)
+	}
+	fast, err := NewFaces(m)
+	if err != nil {
+		t.Fatal(err)
+	}
+	facesFast = false
+	defer func() { facesFast = true }()
+	general, err := NewFaces(m)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var whole, closed, cut int
+	for face := range general.NumFaces() {
+		got, want := fast.Parts(nil, face), general.Parts(nil, face)
+		if !slices.Equal(got, want) || fast.Whole(face) != general.Whole(face) {
+			a, b := general.Segment(face)
+			t.Fatalf("face %d (%v to %v): parts %v, want %v (whole %v, want %v)", face, a, b, got, want, fast.Whole(face), general.Whole(face))
+		}
+		switch {
+		case general.Whole(face):
+			whole++
+		case len(want) == 0:
+			closed++
+		default:
+			cut++
+		}
+	}
+	if !slices.Equal(fast.pieces, general.pieces) {
+		t.Error("the cells' pieces differ")
+	}
+	if whole == 0 || closed == 0 || cut == 0 {
+		t.Errorf("%d whole, %d closed and %d cut faces: the case does not test every kind", whole, closed, cut)
+	}
+}
