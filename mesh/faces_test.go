@@ -365,3 +365,44 @@ func TestFacesFastSameAsGeneral(t *testing.T) {
 		t.Errorf("%d whole, %d closed and %d cut faces: the case does not test every kind", whole, closed, cut)
 	}
 }
+
+// TestArmsFastSameAsGeneral checks that skipping the inner nodes whose links cross nothing
+// (armsFast) leaves every node's kind, owner and arms as the general loop over all links sets
+// them, on a wavy wall with a circle and a plate thinner than a cell, and that the rows shared
+// among 1, 2 or 3 goroutines give the same mesh.
+func TestArmsFastSameAsGeneral(t *testing.T) {
+	const h = 1.0 / 200
+	plate, err := NewRectangle(Point{0.9, 0.5 + 0.2*h}, 0.3, 0.3*h, 0, 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	circle := NewCircle(Point{0.4, 0.45}, 0.12)
+	lower := []Point{{0, 0}, {0.6, 0.03}, {1.5, 0}}
+	build := func() *Mesh {
+		return facesMesh(t, 1.5, lower, flat(1, 1.5), true, 0, 1, h, Body{"circle", circle}, Body{"plate", plate})
+	}
+	same := func(a, b *Mesh) bool {
+		return slices.Equal(a.Kind, b.Kind) && slices.Equal(a.Owner, b.Owner) &&
+			slices.Equal(a.Cuts, b.Cuts) && slices.Equal(a.cutIdx, b.cutIdx)
+	}
+	fast := build()
+	if fast.NY < 2*meshRowsMin {
+		t.Fatalf("%d rows: too few to share", fast.NY)
+	}
+	defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(0))
+	for _, procs := range []int{1, 3} {
+		runtime.GOMAXPROCS(procs)
+		if !same(build(), fast) {
+			t.Errorf("GOMAXPROCS %d: the mesh differs", procs)
+		}
+	}
+	armsFast = false
+	defer func() { armsFast = true }()
+	general := build()
+	if len(general.Cuts) == 0 {
+		t.Fatal("no cut node: the case tests nothing")
+	}
+	if !same(fast, general) {
+		t.Error("kinds, owners or arms differ from the general loop's")
+	}
+}

@@ -6,6 +6,7 @@ import (
 	"slices"
 
 	"phipsi/internal/pages"
+	"phipsi/internal/par"
 )
 
 // Kind classifies a node.
@@ -138,20 +139,22 @@ func (m *Mesh) classify() {
 		_, lowHi[i] = m.Geom.Lower.Range(x)
 		upLo[i], _ = m.Geom.Upper.Range(x)
 	}
-	for j := 0; j < g.NY; j++ {
-		y := g.Y(j)
-		for i := 0; i < g.NX; i++ {
-			k := g.Index(i, j)
-			switch {
-			case y <= lowHi[i]:
-				m.Kind[k], m.Owner[k] = Outside, LowerWall
-			case y >= upLo[i]:
-				m.Kind[k], m.Owner[k] = Outside, UpperWall
-			default:
-				m.Kind[k], m.Owner[k] = Fluid, NoBoundary
+	par.Rows(g.NY, meshRowsMin, func(_, j0, j1 int) {
+		for j := j0; j < j1; j++ {
+			y := g.Y(j)
+			for i := 0; i < g.NX; i++ {
+				k := g.Index(i, j)
+				switch {
+				case y <= lowHi[i]:
+					m.Kind[k], m.Owner[k] = Outside, LowerWall
+				case y >= upLo[i]:
+					m.Kind[k], m.Owner[k] = Outside, UpperWall
+				default:
+					m.Kind[k], m.Owner[k] = Fluid, NoBoundary
+				}
 			}
 		}
-	}
+	})
 	for b, body := range m.Geom.Bodies {
 		i0, i1, j0, j1 := m.span(body.Shape.Bounds())
 		for j := j0; j <= j1; j++ {
@@ -268,9 +271,6 @@ func (m *Mesh) crossings() map[int64]*linkCut {
 // arms turns link crossings into per-node arms and pins nodes that lie on a boundary.
 func (m *Mesh) arms(cuts map[int64]*linkCut) {
 	g := m.Grid
-	for k := range m.cutIdx {
-		m.cutIdx[k] = -1
-	}
 	// Most links cross nothing: a bit per link tells which to look up in the map.
 	crossed := make([]uint64, (2*g.Len()+63)/64)
 	for key := range cuts {
@@ -284,51 +284,78 @@ func (m *Mesh) arms(cuts map[int64]*linkCut) {
 	}
 	type nb struct{ di, dj, dir int }
 	dirs := [4]nb{{1, 0, East}, {-1, 0, West}, {0, 1, North}, {0, -1, South}}
-	for j := 0; j < g.NY; j++ {
-		for i := 0; i < g.NX; i++ {
-			k := g.Index(i, j)
-			if m.Kind[k] != Fluid {
+	// armsAt returns fluid node (i, j)'s arms and whether any meets a boundary.
+	armsAt := func(i, j int) (arms [4]Arm, cut bool) {
+		k := g.Index(i, j)
+		for _, d := range dirs {
+			arm := Arm{1, NoBoundary}
+			ni, nj := i+d.di, j+d.dj
+			if ni < 0 || ni >= g.NX || nj < 0 || nj >= g.NY {
+				arms[d.dir] = arm
 				continue
 			}
-			var arms [4]Arm
-			cut := false
-			for _, d := range dirs {
-				arm := Arm{1, NoBoundary}
-				ni, nj := i+d.di, j+d.dj
-				if ni < 0 || ni >= g.NX || nj < 0 || nj >= g.NY {
-					arms[d.dir] = arm
+			var c *linkCut
+			forward := d.di+d.dj > 0
+			if forward {
+				c = lookup(linkKey(k, d.dj))
+			} else {
+				c = lookup(linkKey(g.Index(ni, nj), -d.dj))
+			}
+			if c != nil {
+				if forward {
+					arm = Arm{c.tmin, c.bmin}
+				} else {
+					arm = Arm{1 - c.tmax, c.bmax}
+				}
+			}
+			nk := g.Index(ni, nj)
+			if arm.Boundary == NoBoundary && (m.Kind[nk] == Solid || m.Kind[nk] == Outside) {
+				// Round-off hid the crossing: the neighbour itself is on the boundary.
+				arm = Arm{1, int(m.Owner[nk])}
+			}
+			if arm.Boundary != NoBoundary {
+				cut = true
+			}
+			arms[d.dir] = arm
+		}
+		return arms, cut
+	}
+	// The rows are shared out in ranges; each range lists its cut nodes, and the lists are
+	// joined in range order, which is node order.
+	nx := g.NX
+	found := make([][]CutNode, par.Ranges(g.NY, meshRowsMin))
+	par.Rows(g.NY, meshRowsMin, func(r, j0, j1 int) {
+		var list []CutNode
+		for j := j0; j < j1; j++ {
+			kind := m.Kind[j*nx : (j+1)*nx]
+			idx := m.cutIdx[j*nx : (j+1)*nx]
+			for i := range idx {
+				idx[i] = -1
+			}
+			inner := armsFast && j > 0 && j < g.NY-1
+			var south, north []Kind
+			if inner {
+				south, north = m.Kind[(j-1)*nx:j*nx], m.Kind[(j+1)*nx:(j+2)*nx]
+			}
+			for i, kd := range kind {
+				if kd != Fluid {
 					continue
 				}
-				var c *linkCut
-				forward := d.di+d.dj > 0
-				if forward {
-					c = lookup(linkKey(k, d.dj))
-				} else {
-					c = lookup(linkKey(g.Index(ni, nj), -d.dj))
+				k := j*nx + i
+				if inner && i > 0 && i < nx-1 && kind[i-1] == Fluid && kind[i+1] == Fluid &&
+					south[i] == Fluid && north[i] == Fluid && !crossedAround(crossed, k, nx) {
+					continue // four whole arms: what armsAt finds for such a node
 				}
-				if c != nil {
-					if forward {
-						arm = Arm{c.tmin, c.bmin}
-					} else {
-						arm = Arm{1 - c.tmax, c.bmax}
-					}
+				if arms, cut := armsAt(i, j); cut {
+					list = append(list, CutNode{Node: k, Arms: arms})
 				}
-				nk := g.Index(ni, nj)
-				if arm.Boundary == NoBoundary && (m.Kind[nk] == Solid || m.Kind[nk] == Outside) {
-					// Round-off hid the crossing: the neighbour itself is on the boundary.
-					arm = Arm{1, int(m.Owner[nk])}
-				}
-				if arm.Boundary != NoBoundary {
-					cut = true
-				}
-				arms[d.dir] = arm
 			}
-			if !cut {
-				continue
-			}
-			m.cutIdx[k] = int32(len(m.Cuts))
-			m.Cuts = append(m.Cuts, CutNode{Node: k, Arms: arms})
 		}
+		found[r] = list
+	})
+	m.Cuts = slices.Concat(found...)
+	for q, c := range m.Cuts {
+		m.cutIdx[c.Node] = int32(q)
 	}
 	for _, c := range m.Cuts {
 		best := -1
@@ -341,6 +368,20 @@ func (m *Mesh) arms(cuts map[int64]*linkCut) {
 			m.Kind[c.Node], m.Owner[c.Node] = Pinned, int16(c.Arms[best].Boundary)
 		}
 	}
+}
+
+// meshRowsMin is the number of grid rows from which Build shares them among goroutines.
+const meshRowsMin = 64
+
+// armsFast lets arms skip inner nodes whose four links cross nothing and whose neighbours are
+// all fluid (tests turn it off to compare with the general loop).
+var armsFast = true
+
+// crossedAround reports whether any of the four links of inner node k, on rows of nx nodes, is
+// marked in crossed (arms).
+func crossedAround(crossed []uint64, k, nx int) bool {
+	bit := func(key int64) bool { return crossed[key>>6]&(1<<(key&63)) != 0 }
+	return bit(linkKey(k, 0)) || bit(linkKey(k, 1)) || bit(linkKey(k-1, 0)) || bit(linkKey(k-nx, 1))
 }
 
 // Hit is a crossing of a segment with a boundary.
