@@ -614,7 +614,7 @@ type PhiSolution struct {
 // MethodAuto, MethodMG or "" for CG with the symmetric multigrid V-cycle (NewMultigrid; the split
 // pieces of a cell share its node and never couple, as it requires) from the system's initial
 // guess improved by a full-multigrid pass (Multigrid.Guess), MethodSOR for red–black SOR.
-// On ErrNotConverged the solution holds the best iterate and the error is returned with it.
+// On ErrNotConverged the solution holds the last iterate and the error is returned with it.
 func SolvePhi(ctx context.Context, sys *PhiSystem, method string, set *Settings) (*PhiSolution, error) {
 	if sys.A == nil {
 		return nil, errReleased
