@@ -3,9 +3,9 @@ package flow
 import (
 	"context"
 	"math"
-	"slices"
 	"reflect"
 	"runtime"
+	"slices"
 	"strings"
 	"testing"
 
