@@ -3,6 +3,8 @@ package flow
 import (
 	"fmt"
 	"math"
+	"slices"
+	"sync"
 
 	"phipsi/internal/par"
 	"phipsi/mesh"
@@ -310,16 +312,24 @@ func awayFromBoundaries(m *mesh.Mesh, dist float64) []bool {
 	r := dist * h
 	away := make([]bool, g.Len())
 	x0, x1 := g.X0+r, g.X(g.NX-1)-r
-	var samples []mesh.SurfacePoint
-	for id := range m.NumBoundaries() {
-		samples = append(samples, m.Sample(id, h/16)...)
+	// The boundaries are sampled at once, one goroutine each (a fine grid's walls carry
+	// hundreds of thousands of samples).
+	each := make([][]mesh.SurfacePoint, m.NumBoundaries())
+	var wg sync.WaitGroup
+	for id := range each {
+		wg.Go(func() { each[id] = m.Sample(id, h/16) })
 	}
+	wg.Wait()
+	samples := slices.Concat(each...)
 	r2 := r * (1 - 1e-9) * r * (1 - 1e-9) // squared, to compare without square roots
 	// Each range of rows marks its own nodes, looking at every sample near them.
 	par.Rows(g.NY, parallelRows, func(_, ja, jb int) {
-		for k := ja * g.NX; k < jb*g.NX; k++ {
-			x := g.X(k % g.NX)
-			away[k] = m.IsFluid(k) && x >= x0-1e-9*h && x <= x1+1e-9*h
+		for j := ja; j < jb; j++ {
+			for i := range g.NX {
+				k := g.Index(i, j)
+				x := g.X(i)
+				away[k] = m.IsFluid(k) && x >= x0-1e-9*h && x <= x1+1e-9*h
+			}
 		}
 		for _, sp := range samples {
 			p := sp.P
@@ -331,9 +341,11 @@ func awayFromBoundaries(m *mesh.Mesh, dist float64) []bool {
 			i0 := max(0, int(math.Floor((p.X-r-g.X0)/h)))
 			i1 := min(g.NX-1, int(math.Ceil((p.X+r-g.X0)/h)))
 			for j := j0; j <= j1; j++ {
-				for i := i0; i <= i1; i++ {
-					if d := g.At(i, j).Sub(p); d.X*d.X+d.Y*d.Y < r2 {
-						away[g.Index(i, j)] = false
+				dy := g.Y(j) - p.Y
+				row := away[g.Index(i0, j) : g.Index(i1, j)+1]
+				for q := range row {
+					if dx := g.X(i0+q) - p.X; dx*dx+dy*dy < r2 {
+						row[q] = false
 					}
 				}
 			}

@@ -335,3 +335,66 @@ func TestVelocityDirectSameBits(t *testing.T) {
 		t.Fatal("no cut node: the general path is not exercised")
 	}
 }
+
+// awayReference is awayFromBoundaries written plainly: every node's test first, then every
+// sample's neighbourhood on one goroutine, with the distances as Point differences.
+func awayReference(m *mesh.Mesh, dist float64) []bool {
+	g := m.Grid
+	h := g.H
+	r := dist * h
+	away := make([]bool, g.Len())
+	x0, x1 := g.X0+r, g.X(g.NX-1)-r
+	var samples []mesh.SurfacePoint
+	for id := range m.NumBoundaries() {
+		samples = append(samples, m.Sample(id, h/16)...)
+	}
+	r2 := r * (1 - 1e-9) * r * (1 - 1e-9)
+	for k := 0; k < g.Len(); k++ {
+		x := g.X(k % g.NX)
+		away[k] = m.IsFluid(k) && x >= x0-1e-9*h && x <= x1+1e-9*h
+	}
+	for _, sp := range samples {
+		p := sp.P
+		j0 := max(0, int(math.Floor((p.Y-r-g.Y0)/h)))
+		j1 := min(g.NY-1, int(math.Ceil((p.Y+r-g.Y0)/h)))
+		i0 := max(0, int(math.Floor((p.X-r-g.X0)/h)))
+		i1 := min(g.NX-1, int(math.Ceil((p.X+r-g.X0)/h)))
+		for j := j0; j <= j1; j++ {
+			for i := i0; i <= i1; i++ {
+				if d := g.At(i, j).Sub(p); d.X*d.X+d.Y*d.Y < r2 {
+					away[g.Index(i, j)] = false
+				}
+			}
+		}
+	}
+	return away
+}
+
+// TestAwayFromBoundariesSame checks the mask of nodes away from every boundary against
+// awayReference, on a channel with a bumped smooth wall, a circle and a foil, at two sizes (the
+// larger one shared among goroutines).
+func TestAwayFromBoundariesSame(t *testing.T) {
+	for _, cells := range []float64{2e4, 3e5} {
+		lw, _ := mesh.NewWall([]mesh.Point{{X: 0, Y: 0}, {X: 2, Y: 0.1}, {X: 6, Y: 0}}, true, false)
+		uw, _ := mesh.NewWall([]mesh.Point{{X: 0, Y: 1}, {X: 6, Y: 1}}, false, true)
+		g, _ := mesh.PlanGrid(6, 0, 1, 1/math.Sqrt(cells/6))
+		foil, _ := mesh.NACA4("2412", 0.5, mesh.Point{X: 3, Y: 0.5}, 0.1, 80)
+		m, err := mesh.Build(&mesh.Geometry{Length: 6, Lower: lw, Upper: uw, Bodies: []mesh.Body{{Name: "c", Shape: mesh.NewCircle(mesh.Point{X: 1.5, Y: 0.5}, 0.1)}, {Name: "f", Shape: foil}}}, g)
+		if err != nil {
+			t.Fatal(err)
+		}
+		a, b := awayFromBoundaries(m, MismatchDistance), awayReference(m, MismatchDistance)
+		n := 0
+		for k := range a {
+			if a[k] != b[k] {
+				t.Fatalf("%g cells: node (%d, %d): away %v, want %v", cells, k%g.NX, k/g.NX, a[k], b[k])
+			}
+			if a[k] {
+				n++
+			}
+		}
+		if n == 0 || n == len(a) {
+			t.Errorf("%g cells: %d of %d nodes away: the case tests nothing", cells, n, len(a))
+		}
+	}
+}
