@@ -418,6 +418,19 @@ func (f *fineLevel) prolongRow(j int) {
 			}
 		}
 	}
+	// The nodes with their own weights (one unknown each) add what those differ by.
+	for _, sp := range f.coarse.tr.row(j) {
+		i := int(sp.i)
+		u := int(f.a.unknown[base+i])
+		bw := bilinear(i, j)
+		for cb, r := range [2][]float64{r0, r1} {
+			for ca := range 2 {
+				if d := sp.w[cb][ca] - bw[cb][ca]; d != 0 {
+					f.x[u] += d * r[i>>1+ca]
+				}
+			}
+		}
+	}
 }
 
 // prolongStretch adds the interpolation to x, the unknowns of consecutive columns from i0 on: the
@@ -467,28 +480,56 @@ func (f *fineLevel) coarsen(mg *Multigrid) (*gridLevel, error) {
 			row[i] = f.a.plain[u>>6]&(1<<(u&63)) != 0 && (u == u0 || f.nodes[u-1] != f.nodes[u])
 		}
 	}
+	// rowEntries returns the entries of unknown u's row, the plain ones shared.
+	rowEntries := func(u int, buf []stepEntry) []stepEntry {
+		a := f.a
+		if a.plain[u>>6]&(1<<(u&63)) != 0 {
+			return plainEntries[:]
+		}
+		var cbuf [5]int32
+		var vbuf [5]float64
+		cols, vals := a.Row(u, cbuf[:], vbuf[:])
+		for q, v := range cols {
+			di, dj, _ := gridStep(int(f.nodes[v])-int(f.nodes[u]), f.nx) // checked by newFineLevel
+			buf = append(buf, stepEntry{int8(di), int8(dj), vals[q]})
+		}
+		return buf
+	}
+	if mg.ownWeights {
+		co.tr = newTransfer(f.nx, f.ny, func(visit func(i, j int)) {
+			for u := range f.a.N {
+				if f.a.plain[u>>6]&(1<<(u&63)) == 0 {
+					k := int(f.nodes[u])
+					visit(k%f.nx, k/f.nx)
+				}
+			}
+		}, func(i, j int, buf []stepEntry) ([]stepEntry, bool) {
+			k := j*f.nx + i
+			u := int(f.a.unknown[k])
+			if u < 0 || u+1 < f.a.N && int(f.nodes[u+1]) == k {
+				return nil, false // no unknown, or the split pieces of a cell: bilinear
+			}
+			return rowEntries(u, buf), true
+		})
+	}
+	task.tr = co.tr
 	task.entries = func(j int, visit func(i int, ent []stepEntry, ap *[3][3]float64)) {
 		a := f.a
 		var buf [9]stepEntry
-		var cbuf [5]int32
-		var vbuf [5]float64
 		for u := int(f.rowStart[j]); u < int(f.rowStart[j+1]); u++ {
 			i := int(f.nodes[u]) - j*f.nx
-			if a.plain[u>>6]&(1<<(u&63)) != 0 {
+			if a.plain[u>>6]&(1<<(u&63)) != 0 && !task.tr.touches(i, j) {
 				visit(i, nil, &plainAP[i&1|(j&1)<<1])
 				continue
 			}
-			ent := buf[:0]
-			cols, vals := a.Row(u, cbuf[:], vbuf[:])
-			for q, v := range cols {
-				di, dj, _ := gridStep(int(f.nodes[v])-int(f.nodes[u]), f.nx) // checked by newFineLevel
-				ent = append(ent, stepEntry{int8(di), int8(dj), vals[q]})
-			}
-			visit(i, ent, nil)
+			visit(i, rowEntries(u, buf[:0]), nil)
 		}
 	}
 	if err := task.run(mg); err != nil {
 		return nil, err
+	}
+	if co.tr != nil {
+		co.tr.near = nil // set-up only
 	}
 	return co, nil
 }

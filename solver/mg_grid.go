@@ -57,6 +57,9 @@ type gridLevel struct {
 	uniform      []bool
 	tmpl         stencil64
 	uniformNodes int // the number of uniform nodes, kept after set-up
+	// tr holds the own interpolation weights of the nodes of the level above that interpolate
+	// from this one (nil: all bilinear).
+	tr *transfer
 
 	op, c int // the current run's kernel and colour
 }
@@ -331,6 +334,23 @@ func (lv *gridLevel) restrictRow(j int) {
 		}
 		b[i] = c1[k] + 0.5*((c0[k]+c2[k])+(m1[k]+p1[k])) + 0.25*((m0[k]+m2[k])+(p0[k]+p2[k]))
 	}
+	// The fine nodes with their own weights add what those weights differ by.
+	for jf := 2*j - 1; jf <= 2*j+1; jf++ {
+		for _, sp := range lv.tr.row(jf) {
+			i := int(sp.i)
+			r := lv.src[(jf+1)*sf+i+1]
+			bw := bilinear(i, jf)
+			cb := j - jf>>1
+			if cb < 0 || cb > 1 {
+				continue
+			}
+			for ca := range 2 {
+				if d := sp.w[cb][ca] - bw[cb][ca]; d != 0 {
+					b[i>>1+ca] += d * r
+				}
+			}
+		}
+	}
 }
 
 // prolongRow adds the bilinear interpolation of the level below to row j: node i of the row
@@ -347,6 +367,24 @@ func (lv *gridLevel) prolongRow(j int) {
 	r1 := co.x[(j1+1)*cs+1 : (j1+2)*cs]
 	r1 = r1[:len(r0)]
 	prolongPairs(x, r0, r1)
+	addOwnWeights(x, co.tr.row(j), j, r0, r1)
+}
+
+// addOwnWeights adds to the unknowns x of fine row j (x[i] at column i) what the special nodes'
+// weights differ from the bilinear ones by, times the coarse values of rows ⌊j/2⌋ (r0) and
+// ⌊j/2⌋ + 1 (r1; only read where a weight asks for it).
+func addOwnWeights(x []float64, row []special, j int, r0, r1 []float64) {
+	for _, sp := range row {
+		i := int(sp.i)
+		bw := bilinear(i, j)
+		for cb, r := range [2][]float64{r0, r1} {
+			for ca := range 2 {
+				if d := sp.w[cb][ca] - bw[cb][ca]; d != 0 {
+					x[i] += d * r[i>>1+ca]
+				}
+			}
+		}
+	}
 }
 
 // prolongPairs adds to the fine row x the bilinear interpolation between the coarse rows r0 and
@@ -390,13 +428,31 @@ func (lv *gridLevel) coarsen(mg *Multigrid) (*gridLevel, error) {
 			copy(row, lv.uniform[k:k+lv.nx])
 		}
 	}
+	if mg.ownWeights {
+		co.tr = newTransfer(lv.nx, lv.ny, func(visit func(i, j int)) {
+			for j := range lv.ny {
+				for i := range lv.nx {
+					if k := (j+1)*lv.sx + i + 1; lv.invD[k] != 0 && (lv.uniform == nil || !lv.uniform[k]) {
+						visit(i, j)
+					}
+				}
+			}
+		}, func(i, j int, buf []stepEntry) ([]stepEntry, bool) {
+			k := (j+1)*lv.sx + i + 1
+			if lv.invD[k] == 0 {
+				return nil, false
+			}
+			return stencilEntries(&lv.st64[k], buf), true
+		})
+	}
+	task.tr = co.tr
 	task.entries = func(j int, visit func(i int, ent []stepEntry, ap *[3][3]float64)) {
 		var buf [9]stepEntry
 		for i := range lv.nx {
 			k := (j+1)*lv.sx + i + 1
 			switch {
 			case lv.invD[k] == 0:
-			case lv.uniform != nil && lv.uniform[k]:
+			case lv.uniform != nil && lv.uniform[k] && !task.tr.touches(i, j):
 				visit(i, nil, &task.tmplAP[i&1|(j&1)<<1])
 			default:
 				visit(i, stencilEntries(&lv.st64[k], buf[:0]), nil)
@@ -405,6 +461,9 @@ func (lv *gridLevel) coarsen(mg *Multigrid) (*gridLevel, error) {
 	}
 	if err := task.run(mg); err != nil {
 		return nil, err
+	}
+	if co.tr != nil {
+		co.tr.near = nil // set-up only
 	}
 	return co, nil
 }
@@ -481,7 +540,10 @@ type galerkinTask struct {
 	// entries calls visit for every active node of fine row j, in increasing i, with its
 	// row's coefficients, or instead with its row of A P when that is known beforehand (the same
 	// bits rowAP would compute).
-	entries      func(j int, visit func(i int, ent []stepEntry, ap *[3][3]float64))
+	entries func(j int, visit func(i int, ent []stepEntry, ap *[3][3]float64))
+	// tr holds the fine nodes' own interpolation weights (nil: all bilinear); entries gives no
+	// precomputed row of A P for a node that tr.touches.
+	tr           *transfer
 	errs         []error
 	active       []int
 	uniformNodes []int // per block
@@ -535,7 +597,7 @@ func (t *galerkinTask) runBlock(blk int) {
 				co.addRowAP(i, j, ap, j0, j1)
 				return
 			}
-			co.addGalerkin(i, j, ent, j0, j1)
+			co.addGalerkin(i, j, ent, j0, j1, t.tr)
 		})
 	}
 	for j := j0; j < j1; j++ {
@@ -566,7 +628,13 @@ func (t *galerkinTask) markUniform(blk, j0, j1 int) {
 	hi := min(t.fineNY, 2*j1)
 	rows := make([]bool, (hi-lo)*nx)
 	for j := lo; j < hi; j++ {
-		t.uniformRow(j, rows[(j-lo)*nx:(j-lo+1)*nx])
+		row := rows[(j-lo)*nx : (j-lo+1)*nx]
+		t.uniformRow(j, row)
+		if t.tr != nil {
+			for i := range row {
+				row[i] = row[i] && !t.tr.touches(i, j)
+			}
+		}
 	}
 	for J := j0; J < j1; J++ {
 		if 2*J-1 < 0 || 2*J+1 >= t.fineNY {
@@ -603,80 +671,77 @@ func (co *gridLevel) parentsUniform(i, j, j0, j1 int) bool {
 }
 
 // addGalerkin adds the contributions of fine node (i, j), whose row has coefficients ent, to the
-// coarse rows j0 ≤ J < j1: A_c(C, D) += P(u, C) · (A P)(u, D).
-func (co *gridLevel) addGalerkin(i, j int, ent []stepEntry, j0, j1 int) {
+// coarse rows j0 ≤ J < j1: A_c(C, D) += P(u, C) · (A P)(u, D), with the weights of tr.
+func (co *gridLevel) addGalerkin(i, j int, ent []stepEntry, j0, j1 int, tr *transfer) {
 	if (j+1)>>1 < j0 || j>>1 >= j1 {
 		return
 	}
-	ap := rowAP(i, j, ent)
-	co.addRowAP(i, j, &ap, j0, j1)
+	ap := rowAPw(i, j, ent, tr)
+	w := tr.weights(i, j)
+	co.addRowAPw(i, j, &ap, &w, j0, j1)
 }
 
 // rowAP returns row u of A P for fine node u = (i, j) with row coefficients ent, on the coarse
-// nodes (bx+a, by+b), 0 ≤ a, b ≤ 2, bx = ⌊i/2⌋ − 1, by = ⌊j/2⌋ − 1: every neighbour v of u
-// interpolates from coarse column iv/2 (weight 1) when iv is even, from columns ⌊iv/2⌋ and
-// ⌈iv/2⌉ (½ each) when it is odd, and from rows likewise. It depends on i and j only through
-// their parities.
-func rowAP(i, j int, ent []stepEntry) [3][3]float64 {
+// nodes (bx+a, by+b), 0 ≤ a, b ≤ 2, bx = ⌊i/2⌋ − 1, by = ⌊j/2⌋ − 1, with bilinear weights: every
+// neighbour v of u interpolates from coarse column iv/2 (weight 1) when iv is even, from columns
+// ⌊iv/2⌋ and ⌈iv/2⌉ (½ each) when it is odd, and from rows likewise. It depends on i and j only
+// through their parities.
+func rowAP(i, j int, ent []stepEntry) [3][3]float64 { return rowAPw(i, j, ent, nil) }
+
+// rowAPw is rowAP with the neighbours' weights from tr (the same bits as rowAP where they are
+// bilinear).
+func rowAPw(i, j int, ent []stepEntry, tr *transfer) [3][3]float64 {
 	bx, by := i>>1-1, j>>1-1
 	var ap [3][3]float64
 	for _, e := range ent {
 		iv, jv := i+int(e.di), j+int(e.dj)
 		x, y := iv>>1-bx, jv>>1-by
-		switch iv&1 | (jv&1)<<1 {
-		case 0:
-			ap[y][x] += e.a
-		case 1:
-			q := 0.5 * e.a
-			ap[y][x] += q
-			ap[y][x+1] += q
-		case 2:
-			q := 0.5 * e.a
-			ap[y][x] += q
-			ap[y+1][x] += q
-		default:
-			q := 0.25 * e.a
-			ap[y][x] += q
-			ap[y][x+1] += q
-			ap[y+1][x] += q
-			ap[y+1][x+1] += q
+		w := tr.weights(iv, jv)
+		for b := range 2 {
+			for a := range 2 {
+				switch w[b][a] {
+				case 0:
+				case 1:
+					ap[y+b][x+a] += e.a
+				default:
+					ap[y+b][x+a] += w[b][a] * e.a
+				}
+			}
 		}
 	}
 	return ap
 }
 
 // addRowAP adds row u = (i, j) of A P, ap (see rowAP), times P(u, C) to the coarse rows
-// j0 ≤ J < j1: A_c(C, D) += P(u, C) · (A P)(u, D).
+// j0 ≤ J < j1 with node u's bilinear weights: A_c(C, D) += P(u, C) · (A P)(u, D).
 func (co *gridLevel) addRowAP(i, j int, ap *[3][3]float64, j0, j1 int) {
+	w := bilinear(i, j)
+	co.addRowAPw(i, j, ap, &w, j0, j1)
+}
+
+// addRowAPw is addRowAP with node u's weights w (special's layout).
+func (co *gridLevel) addRowAPw(i, j int, ap *[3][3]float64, w *[2][2]float64, j0, j1 int) {
 	if (j+1)>>1 < j0 || j>>1 >= j1 {
 		return
 	}
 	bx, by := i>>1-1, j>>1-1
-	// P(u, C): 1 for a coincident coarse node, ½ for each of two, ¼ for each of four. A parent
-	// at column bx + d (d = 1 or 2) takes the entries of ap with a − d in [−1, 1], at stencil
-	// column a − d + 1; likewise for rows.
-	type parent struct {
-		d int // offset from bx (or by): 1 or 2
-		w float64
-	}
-	px := [2]parent{{1, 1}}
-	if i&1 == 1 {
-		px = [2]parent{{1, 0.5}, {2, 0.5}}
-	}
-	py := [2]parent{{1, 1}}
-	if j&1 == 1 {
-		py = [2]parent{{1, 0.5}, {2, 0.5}}
-	}
-	for _, cy := range py[:1+j&1] {
-		if r := by + cy.d; r < j0 || r >= j1 {
+	// A parent at column bx + d (d = 1 or 2) takes the entries of ap with a − d in [−1, 1], at
+	// stencil column a − d + 1; likewise for rows.
+	for cb := range 2 {
+		dy := 1 + cb
+		if r := by + dy; r < j0 || r >= j1 {
 			continue
 		}
-		for _, cx := range px[:1+i&1] {
-			w := cx.w * cy.w
-			s := &co.st64[(by+cy.d+1)*co.sx+bx+cx.d+1]
-			for b := cy.d - 1; b <= min(2, cy.d+1); b++ {
-				for a := cx.d - 1; a <= min(2, cx.d+1); a++ {
-					s[(b-cy.d+1)*3+a-cx.d+1] += w * ap[b][a]
+		for ca := range 2 {
+			wt := w[cb][ca]
+			if wt == 0 {
+				continue
+			}
+			dx := 1 + ca
+			s := &co.st64[(by+dy+1)*co.sx+bx+dx+1]
+			for b := dy - 1; b <= min(2, dy+1); b++ {
+				for a := dx - 1; a <= min(2, dx+1); a++ {
+					s[(b-dy+1)*3+a-dx+1] += wt * ap[b][a]
 				}
 			}
 		}

@@ -594,8 +594,10 @@ func mgRandomGrid(rng *rand.Rand, nx, ny int, hole func(i, j int) bool) (*CSR, m
 }
 
 // TestMultigridGalerkin checks the first two coarse operators against P^T A P formed densely from
-// bilinear interpolation written out independently: coarse node (I, J) at fine (2I, 2J),
-// P(u, C) = w(i − 2I)·w(j − 2J), w(0) = 1, w(±1) = ½.
+// the interpolation: bilinear, written out independently (coarse node (I, J) at fine (2I, 2J),
+// P(u, C) = w(i − 2I)·w(j − 2J), w(0) = 1, w(±1) = ½), except at the nodes that take weights of
+// their own from the operator (mg_transfer.go, MGOptions.OperatorWeights), which the random
+// coefficients give every level; and once with bilinear weights everywhere.
 func TestMultigridGalerkin(t *testing.T) {
 	const (
 		// roundTol is the float32 rounding of the stored coarse entries, 2⁻²⁴ relative.
@@ -606,9 +608,10 @@ func TestMultigridGalerkin(t *testing.T) {
 	)
 	rng := rand.New(rand.NewPCG(1, 2))
 	hole := func(i, j int) bool { return (i-6)*(i-6)+(j-5)*(j-5) < 6 || (j == 0 && i < 3) }
-	for _, dims := range [][2]int{{17, 11}, {18, 12}, {16, 9}} {
+	for q, dims := range [][2]int{{17, 11}, {18, 12}, {16, 9}, {17, 11}} {
 		a, g, nodes := mgRandomGrid(rng, dims[0], dims[1], hole)
-		mg, err := NewMultigrid(a, g, nodes, MGOptions{Coarsest: 4})
+		ownWeights := q < 3 // the last grid with bilinear weights everywhere
+		mg, err := NewMultigrid(a, g, nodes, MGOptions{Coarsest: 4, OperatorWeights: ownWeights})
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -629,8 +632,21 @@ func TestMultigridGalerkin(t *testing.T) {
 			}
 			p := mat.NewDense(nx*ny, lv.nx*lv.ny, nil)
 			w := func(d int) float64 { return [3]float64{0.5, 1, 0.5}[d+1] }
+			own := 0
 			for j := range ny {
 				for i := range nx {
+					if row := lv.tr.row(j); slices.ContainsFunc(row, func(s special) bool { return int(s.i) == i }) {
+						own++
+						ow := lv.tr.weights(i, j)
+						for b := range 2 {
+							for a := range 2 {
+								if ow[b][a] != 0 {
+									p.Set(j*nx+i, (j>>1+b)*lv.nx+i>>1+a, ow[b][a])
+								}
+							}
+						}
+						continue
+					}
 					for jc := range lv.ny {
 						for ic := range lv.nx {
 							if di, dj := i-2*ic, j-2*jc; di >= -1 && di <= 1 && dj >= -1 && dj <= 1 {
@@ -639,6 +655,9 @@ func TestMultigridGalerkin(t *testing.T) {
 						}
 					}
 				}
+			}
+			if (own > 0) != ownWeights {
+				t.Errorf("%v level %d: %d nodes with weights of their own, want them only with OperatorWeights (%v)", dims, l+1, own, ownWeights)
 			}
 			var ap, want mat.Dense
 			ap.Mul(fine, p)
@@ -910,12 +929,18 @@ func TestTeamLateWake(t *testing.T) {
 }
 
 func TestMultigridSameBitsAnyThreads(t *testing.T) {
+	for _, ow := range []bool{false, true} {
+		multigridSameBitsAnyThreads(t, ow)
+	}
+}
+
+func multigridSameBitsAnyThreads(t *testing.T, ownWeights bool) {
 	sys := mgPassageFoil.psi(t, 16000)
 	defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(0))
 	var ref []float64
 	for _, procs := range []int{1, 2, 3} {
 		runtime.GOMAXPROCS(procs)
-		mg, err := NewMultigrid(sys.A, sys.Mesh.Grid, sys.Nodes, MGOptions{})
+		mg, err := NewMultigrid(sys.A, sys.Mesh.Grid, sys.Nodes, MGOptions{OperatorWeights: ownWeights})
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -930,7 +955,7 @@ func TestMultigridSameBitsAnyThreads(t *testing.T) {
 		}
 		for q := range x {
 			if math.Float64bits(x[q]) != math.Float64bits(ref[q]) {
-				t.Fatalf("GOMAXPROCS %d: x[%d] = %v, want %v (GOMAXPROCS 1), bit for bit", procs, q, x[q], ref[q])
+				t.Fatalf("operator weights %v, GOMAXPROCS %d: x[%d] = %v, want %v (GOMAXPROCS 1), bit for bit", ownWeights, procs, q, x[q], ref[q])
 			}
 		}
 	}
@@ -1087,23 +1112,25 @@ func TestMultigridUniformSameBits(t *testing.T) {
 			a         *CSR
 			symmetric bool
 		}{{"psi", sys.A.CSR(), false}, {"spd", mgSPD(sys), true}} {
-			build := func(uniform bool) (*Multigrid, int) {
-				galerkinUniform = uniform
-				mg, err := NewMultigrid(c.a, sys.Mesh.Grid, sys.Nodes, MGOptions{Symmetric: c.symmetric})
-				if err != nil {
-					t.Fatal(err)
+			for _, ow := range []bool{false, true} {
+				build := func(uniform bool) (*Multigrid, int) {
+					galerkinUniform = uniform
+					mg, err := NewMultigrid(c.a, sys.Mesh.Grid, sys.Nodes, MGOptions{Symmetric: c.symmetric, OperatorWeights: ow})
+					if err != nil {
+						t.Fatal(err)
+					}
+					return mg, mg.levels[0].uniformNodes
 				}
-				return mg, mg.levels[0].uniformNodes
-			}
-			want, _ := build(false)
-			got, copied := build(true)
-			if copied < c.a.N/8 {
-				t.Errorf("%s %s: %d uniform coarse nodes, want at least %d (most of the first level)", p.name, c.name, copied, c.a.N/8)
-			}
-			for l, lv := range got.levels[:len(got.levels)-1] {
-				for k := range lv.st {
-					if lv.st[k] != want.levels[l].st[k] || math.Float64bits(lv.invD[k]) != math.Float64bits(want.levels[l].invD[k]) {
-						t.Fatalf("%s %s, level %d, node %d: got %v, want %v (general sums), bit for bit", p.name, c.name, l, k, lv.st[k], want.levels[l].st[k])
+				want, _ := build(false)
+				got, copied := build(true)
+				if copied < c.a.N/8 {
+					t.Errorf("%s %s: %d uniform coarse nodes, want at least %d (most of the first level)", p.name, c.name, copied, c.a.N/8)
+				}
+				for l, lv := range got.levels[:len(got.levels)-1] {
+					for k := range lv.st {
+						if lv.st[k] != want.levels[l].st[k] || math.Float64bits(lv.invD[k]) != math.Float64bits(want.levels[l].invD[k]) {
+							t.Fatalf("%s %s (operator weights %v), level %d, node %d: got %v, want %v (general sums), bit for bit", p.name, c.name, ow, l, k, lv.st[k], want.levels[l].st[k])
+						}
 					}
 				}
 			}
@@ -1123,11 +1150,13 @@ func TestMultigridFusedSameBits(t *testing.T) {
 		symmetric bool
 	}{{"psi", sys.A.CSR(), false}, {"spd", spd, true}} {
 		for smooth := 1; smooth <= 3; smooth++ {
-			mg, err := NewMultigrid(c.a, sys.Mesh.Grid, sys.Nodes, MGOptions{Symmetric: c.symmetric, Smooth: smooth})
-			if err != nil {
-				t.Fatal(err)
+			for _, ow := range []bool{false, true} {
+				mg, err := NewMultigrid(c.a, sys.Mesh.Grid, sys.Nodes, MGOptions{Symmetric: c.symmetric, Smooth: smooth, OperatorWeights: ow})
+				if err != nil {
+					t.Fatal(err)
+				}
+				fusedSameBits(t, fmt.Sprintf("%s, %d sweeps, operator weights %v", c.name, smooth, ow), mg, sys.B0)
 			}
-			fusedSameBits(t, fmt.Sprintf("%s, %d sweeps", c.name, smooth), mg, sys.B0)
 		}
 	}
 }
@@ -1301,4 +1330,118 @@ func mgMaxAbs(x []float64) float64 {
 		d = math.Max(d, math.Abs(v))
 	}
 	return d
+}
+
+// TestMultigridOperatorWeights checks the interpolation weights taken from the operator
+// (MGOptions.OperatorWeights): every level has nodes with weights of their own, all of them within
+// two nodes of a row that is not the level's template; restriction is the transpose of
+// interpolation, ⟨r, P x_c⟩ = ⟨Pᵀ r, x_c⟩, between the finest level and the first coarse one and
+// between the first two coarse ones; and the symmetric V-cycle stays symmetric.
+func TestMultigridOperatorWeights(t *testing.T) {
+	// adjTol bounds |⟨r, P x_c⟩ − ⟨Pᵀ r, x_c⟩| relative to ‖r‖‖P x_c‖: the two sums add the
+	// same products in different orders.
+	const adjTol = 1e-13
+	// symTol bounds |y·M⁻¹x − x·M⁻¹y| / (‖x‖‖M⁻¹y‖), as in TestMultigridSymmetricCG.
+	const symTol = 1e-12
+	rng := rand.New(rand.NewPCG(8, 1))
+	for _, p := range mgPassages {
+		sys := p.psi(t, 40000)
+		for _, c := range []struct {
+			name      string
+			a         *CSR
+			symmetric bool
+		}{{"psi", sys.A.CSR(), false}, {"spd", mgSPD(sys), true}} {
+			name := p.name + " " + c.name
+			mg, err := NewMultigrid(c.a, sys.Mesh.Grid, sys.Nodes, MGOptions{Symmetric: c.symmetric, OperatorWeights: true})
+			if err != nil {
+				t.Fatal(err)
+			}
+			f := mg.fine
+			l0, l1 := mg.levels[0], mg.levels[1]
+			if l0.tr == nil || l1.tr == nil {
+				t.Fatalf("%s: the first two coarse levels have no nodes with weights of their own", name)
+			}
+			// Locality on the finest level: a special node lies within two nodes of a row that is
+			// not plain.
+			irregular := map[int]bool{}
+			for u := range f.a.N {
+				if f.a.plain[u>>6]&(1<<(u&63)) == 0 {
+					irregular[int(f.nodes[u])] = true
+				}
+			}
+			for j := range f.ny {
+				for _, sp := range l0.tr.row(j) {
+					near := false
+					for y := j - 2; y <= j+2 && !near; y++ {
+						for x := int(sp.i) - 2; x <= int(sp.i)+2 && !near; x++ {
+							near = irregular[y*f.nx+x]
+						}
+					}
+					if !near {
+						t.Fatalf("%s: node (%d, %d) has weights %v of its own, far from any irregular row", name, sp.i, j, sp.w)
+					}
+				}
+			}
+			// Finest ↔ first coarse level.
+			xc := randCoarse(rng, l0)
+			f.x = make([]float64, f.a.N)
+			for j := range f.ny {
+				f.prolongRow(j)
+			}
+			r := randVec(rng, f.a.N)
+			clear(f.r)
+			for u, k := range f.nodes {
+				kk := int(k)
+				f.r[(kk/f.nx+1)*f.stride+kk%f.nx+1] += r[u]
+			}
+			for j := range l0.ny {
+				l0.restrictRow(j)
+			}
+			checkAdjoint(t, name+", finest to first coarse", r, f.x, l0.b, xc, adjTol)
+			f.x = nil
+			// First ↔ second coarse level.
+			r0 := slices.Clone(randCoarse(rng, l0)) // a residual on the first coarse level
+			xc = randCoarse(rng, l1)
+			clear(l0.x)
+			for j := range l0.ny {
+				l0.prolongRow(j)
+			}
+			copy(l1.src, r0)
+			for j := range l1.ny {
+				l1.restrictRow(j)
+			}
+			checkAdjoint(t, name+", first to second coarse", r0, l0.x, l1.b, xc, adjTol)
+			if !c.symmetric {
+				continue
+			}
+			x, y := randVec(rng, f.a.N), randVec(rng, f.a.N)
+			mx, my := make([]float64, f.a.N), make([]float64, f.a.N)
+			mg.PreconSolve(mx, x)
+			mg.PreconSolve(my, y)
+			if d := math.Abs(dot(y, mx) - dot(x, my)); d > symTol*math.Sqrt(dot(x, x)*dot(my, my)) {
+				t.Errorf("%s: |y·M⁻¹x − x·M⁻¹y| = %.3g, want a symmetric V-cycle", name, d)
+			}
+		}
+	}
+}
+
+// randCoarse fills the active nodes of coarse level lv's x with random values (zero elsewhere)
+// and returns lv.x.
+func randCoarse(rng *rand.Rand, lv *gridLevel) []float64 {
+	clear(lv.x)
+	for k, inv := range lv.invD {
+		if inv != 0 || lv.dense != nil {
+			lv.x[k] = 2*rng.Float64() - 1
+		}
+	}
+	return lv.x
+}
+
+// checkAdjoint checks ⟨r, px⟩ = ⟨b, xc⟩ to tol relative to ‖r‖‖px‖.
+func checkAdjoint(t *testing.T, name string, r, px, b, xc []float64, tol float64) {
+	t.Helper()
+	lhs, rhs := dot(r, px), dot(b, xc)
+	if d := math.Abs(lhs - rhs); !(d <= tol*math.Sqrt(dot(r, r)*dot(px, px))) {
+		t.Errorf("%s: ⟨r, P x_c⟩ = %.15g, ⟨Pᵀ r, x_c⟩ = %.15g: restriction is not the transpose of interpolation", name, lhs, rhs)
+	}
 }

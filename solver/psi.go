@@ -352,7 +352,7 @@ func (sys *PsiSystem) solveWithConstants(ctx context.Context, method string, con
 	// The work vectors come first: the hierarchy forms its coarse operators in them.
 	ws := new(Workspace)
 	ws.ReserveBiCGStab(n + len(sys.BK))
-	mg, err := NewMultigrid(sys.A, sys.Mesh.Grid, sys.Nodes, MGOptions{Scratch: ws.buf})
+	mg, err := NewMultigrid(sys.A, sys.Mesh.Grid, sys.Nodes, MGOptions{Scratch: ws.buf, OperatorWeights: true})
 	if err != nil {
 		return nil, nil, fmt.Errorf("stream function: %w", err)
 	}
@@ -475,7 +475,7 @@ func (sys *PsiSystem) solverFor(method string) (func(ctx context.Context, b, x [
 		// The work vectors come first: the hierarchy forms its coarse operators in them.
 		ws := new(Workspace)
 		ws.ReserveBiCGStab(sys.A.Len())
-		mg, err := NewMultigrid(sys.A, sys.Mesh.Grid, sys.Nodes, MGOptions{Scratch: ws.buf})
+		mg, err := NewMultigrid(sys.A, sys.Mesh.Grid, sys.Nodes, MGOptions{Scratch: ws.buf, OperatorWeights: true})
 		if err != nil {
 			return nil, fmt.Errorf("stream function: %w", err)
 		}
