@@ -115,7 +115,7 @@ type Multigrid struct {
 	scratch []float64
 	// ownWeights is MGOptions.OperatorWeights.
 	ownWeights bool
-	regions [2][]stencil64
+	regions    [2][]stencil64
 }
 
 // mgMinParallel is the default Multigrid.minParallel.
