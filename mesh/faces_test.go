@@ -280,18 +280,24 @@ func TestFacesGridMustCoverChannel(t *testing.T) {
 	}
 }
 
-// TestFacesSameOnAnyThreads checks that the faces of a grid with more than faceLinesMin lines
-// each way, cut by a smooth wall, a circle and a plate thinner than a cell, are the same, bit for
-// bit, whether the lines are cut on one goroutine or shared among several.
-func TestFacesSameOnAnyThreads(t *testing.T) {
-	const h = 1.0 / 300
+// cutChannel is a 1.5 × 1 channel at spacing h with a bump in its smooth lower wall, a circle
+// and a plate thinner than a cell.
+func cutChannel(t *testing.T, h float64) *Mesh {
+	t.Helper()
 	plate, err := NewRectangle(Point{0.9, 0.5 + 0.2*h}, 0.3, 0.3*h, 0, 0)
 	if err != nil {
 		t.Fatal(err)
 	}
 	circle := NewCircle(Point{0.4, 0.45}, 0.12)
 	lower := []Point{{0, 0}, {0.6, 0.03}, {1.5, 0}}
-	m := facesMesh(t, 1.5, lower, flat(1, 1.5), true, 0, 1, h, Body{"circle", circle}, Body{"plate", plate})
+	return facesMesh(t, 1.5, lower, flat(1, 1.5), true, 0, 1, h, Body{"circle", circle}, Body{"plate", plate})
+}
+
+// TestFacesSameOnAnyThreads checks that the faces of a grid with more than faceLinesMin lines
+// each way, cut by a smooth wall, a circle and a plate thinner than a cell, are the same, bit for
+// bit, whether the lines are cut on one goroutine or shared among several.
+func TestFacesSameOnAnyThreads(t *testing.T) {
+	m := cutChannel(t, 1.0/300)
 	if m.NX <= faceLinesMin || m.NY <= faceLinesMin {
 		t.Fatalf("%d × %d nodes: too few lines to share", m.NX, m.NY)
 	}
@@ -321,14 +327,7 @@ func TestFacesSameOnAnyThreads(t *testing.T) {
 // included, and every cell the same pieces as one line at a time with every face clipped: on the
 // grid of TestFacesSameOnAnyThreads, with more lines than one tile and a last tile cut short.
 func TestFacesFastSameAsGeneral(t *testing.T) {
-	const h = 1.0 / 300
-	plate, err := NewRectangle(Point{0.9, 0.5 + 0.2*h}, 0.3, 0.3*h, 0, 0)
-	if err != nil {
-		t.Fatal(err)
-	}
-	circle := NewCircle(Point{0.4, 0.45}, 0.12)
-	lower := []Point{{0, 0}, {0.6, 0.03}, {1.5, 0}}
-	m := facesMesh(t, 1.5, lower, flat(1, 1.5), true, 0, 1, h, Body{"circle", circle}, Body{"plate", plate})
+	m := cutChannel(t, 1.0/300)
 	if m.NX%faceTile == 0 || m.NX < 2*faceTile {
 		t.Fatalf("%d columns: want more than two tiles of %d and a short last one", m.NX, faceTile)
 	}
@@ -371,16 +370,7 @@ func TestFacesFastSameAsGeneral(t *testing.T) {
 // them, on a wavy wall with a circle and a plate thinner than a cell, and that the rows shared
 // among 1, 2 or 3 goroutines give the same mesh.
 func TestArmsFastSameAsGeneral(t *testing.T) {
-	const h = 1.0 / 200
-	plate, err := NewRectangle(Point{0.9, 0.5 + 0.2*h}, 0.3, 0.3*h, 0, 0)
-	if err != nil {
-		t.Fatal(err)
-	}
-	circle := NewCircle(Point{0.4, 0.45}, 0.12)
-	lower := []Point{{0, 0}, {0.6, 0.03}, {1.5, 0}}
-	build := func() *Mesh {
-		return facesMesh(t, 1.5, lower, flat(1, 1.5), true, 0, 1, h, Body{"circle", circle}, Body{"plate", plate})
-	}
+	build := func() *Mesh { return cutChannel(t, 1.0/200) }
 	same := func(a, b *Mesh) bool {
 		return slices.Equal(a.Kind, b.Kind) && slices.Equal(a.Owner, b.Owner) &&
 			slices.Equal(a.Cuts, b.Cuts) && slices.Equal(a.cutIdx, b.cutIdx)

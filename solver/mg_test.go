@@ -1063,11 +1063,7 @@ func TestMultigridGuess(t *testing.T) {
 func TestMultigridScratch(t *testing.T) {
 	sys := mgPassageStep.psi(t, 16000)
 	spd := mgSPD(sys)
-	for _, c := range []struct {
-		name      string
-		a         *CSR
-		symmetric bool
-	}{{"psi", sys.A.CSR(), false}, {"spd", spd, true}} {
+	for _, c := range psiAndSPD(sys.A.CSR(), spd) {
 		vcycle := func(scratch []float64) []float64 {
 			mg, err := NewMultigrid(c.a, sys.Mesh.Grid, sys.Nodes, MGOptions{Symmetric: c.symmetric, Scratch: scratch})
 			if err != nil {
@@ -1107,11 +1103,7 @@ func TestMultigridUniformSameBits(t *testing.T) {
 	defer func() { galerkinUniform = true }()
 	for _, p := range mgPassages {
 		sys := p.psi(t, 40000)
-		for _, c := range []struct {
-			name      string
-			a         *CSR
-			symmetric bool
-		}{{"psi", sys.A.CSR(), false}, {"spd", mgSPD(sys), true}} {
+		for _, c := range psiAndSPD(sys.A.CSR(), mgSPD(sys)) {
 			for _, ow := range []bool{false, true} {
 				build := func(uniform bool) (*Multigrid, int) {
 					galerkinUniform = uniform
@@ -1144,11 +1136,7 @@ func TestMultigridFusedSameBits(t *testing.T) {
 	sys := mgPassageStep.psi(t, 16000)
 	spd := mgSPD(sys)
 	defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(0))
-	for _, c := range []struct {
-		name      string
-		a         *CSR
-		symmetric bool
-	}{{"psi", sys.A.CSR(), false}, {"spd", spd, true}} {
+	for _, c := range psiAndSPD(sys.A.CSR(), spd) {
 		for smooth := 1; smooth <= 3; smooth++ {
 			for _, ow := range []bool{false, true} {
 				mg, err := NewMultigrid(c.a, sys.Mesh.Grid, sys.Nodes, MGOptions{Symmetric: c.symmetric, Smooth: smooth, OperatorWeights: ow})
@@ -1346,11 +1334,7 @@ func TestMultigridOperatorWeights(t *testing.T) {
 	rng := rand.New(rand.NewPCG(8, 1))
 	for _, p := range mgPassages {
 		sys := p.psi(t, 40000)
-		for _, c := range []struct {
-			name      string
-			a         *CSR
-			symmetric bool
-		}{{"psi", sys.A.CSR(), false}, {"spd", mgSPD(sys), true}} {
+		for _, c := range psiAndSPD(sys.A.CSR(), mgSPD(sys)) {
 			name := p.name + " " + c.name
 			mg, err := NewMultigrid(c.a, sys.Mesh.Grid, sys.Nodes, MGOptions{Symmetric: c.symmetric, OperatorWeights: true})
 			if err != nil {
@@ -1444,4 +1428,16 @@ func checkAdjoint(t *testing.T, name string, r, px, b, xc []float64, tol float64
 	if d := math.Abs(lhs - rhs); !(d <= tol*math.Sqrt(dot(r, r)*dot(px, px))) {
 		t.Errorf("%s: ⟨r, P x_c⟩ = %.15g, ⟨Pᵀ r, x_c⟩ = %.15g: restriction is not the transpose of interpolation", name, lhs, rhs)
 	}
+}
+
+// mgCase is a system to test the multigrid method on: its matrix and whether it is symmetric.
+type mgCase struct {
+	name      string
+	a         *CSR
+	symmetric bool
+}
+
+// psiAndSPD returns a passage's ψ matrix and its symmetric counterpart (mgSPD) as test cases.
+func psiAndSPD(psi, spd *CSR) []mgCase {
+	return []mgCase{{"psi", psi, false}, {"spd", spd, true}}
 }
