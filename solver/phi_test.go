@@ -553,3 +553,46 @@ func TestPhiDirectRowsSameBits(t *testing.T) {
 		compare(t, m, phiBC(t, m, 1), nil, nil)
 	})
 }
+
+// TestSlenderBody checks the isoperimetric quotients behind φ's choice of interpolation against
+// closed forms: 1 for a circle; for an a × b rectangle 4πab/(2(a+b))² (π/4 for a square); for an
+// ellipse of semi-axes a, b, 4π·πab/P² with Ramanujan's perimeter
+// P ≈ π(3(a+b) − √((3a+b)(a+3b))) (Ramanujan 1914, from memory; at 5:1 its error is far below
+// sampleTol).
+func TestSlenderBody(t *testing.T) {
+	// sampleTol allows for the outline sampled at 1/2000 of its diagonal.
+	const sampleTol = 1e-3
+	ramanujan := func(a, b float64) float64 { return math.Pi * (3*(a+b) - math.Sqrt((3*a+b)*(a+3*b))) }
+	square, err := mesh.NewRectangle(mesh.Point{X: 1, Y: 1}, 0.3, 0.3, 0.4, 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	plate, err := mesh.NewRectangle(mesh.Point{X: 1, Y: 1}, 0.3, 0.02, 0, 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, c := range []struct {
+		name    string
+		s       mesh.Shape
+		want    float64
+		slender bool
+	}{
+		{"circle", mesh.NewCircle(mesh.Point{X: 2, Y: 0.5}, 0.1), 1, false},
+		{"square", square, math.Pi / 4, false},
+		{"ellipse 3.2:1", mesh.NewEllipse(mesh.Point{X: 2, Y: 0.5}, 0.08, 0.025, 0.3), 4 * math.Pi * math.Pi * 0.08 * 0.025 / math.Pow(ramanujan(0.08, 0.025), 2), false},
+		{"ellipse 5:1", mesh.NewEllipse(mesh.Point{X: 2, Y: 0.5}, 0.15, 0.03, 0), 4 * math.Pi * math.Pi * 0.15 * 0.03 / math.Pow(ramanujan(0.15, 0.03), 2), true},
+		{"plate 15:1", plate, 4 * math.Pi * 0.3 * 0.02 / math.Pow(2*(0.3+0.02), 2), true},
+	} {
+		got := isoperimetricQuotient(c.s)
+		if math.Abs(got-c.want) > sampleTol*c.want {
+			t.Errorf("%s: quotient %.6f, want %.6f", c.name, got, c.want)
+		}
+		geo := &mesh.Geometry{Bodies: []mesh.Body{{Name: "c", Shape: c.s}}}
+		if slenderBody(geo) != c.slender {
+			t.Errorf("%s: slender %v, want %v", c.name, !c.slender, c.slender)
+		}
+	}
+	if slenderBody(&mesh.Geometry{}) {
+		t.Error("no body: slender, want not")
+	}
+}
