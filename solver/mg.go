@@ -43,8 +43,8 @@ type MGOptions struct {
 	// the operator instead of bilinear ones (mg_transfer.go). On the stream function's
 	// Shortley–Weller systems this halves the BiCGStab iterations (62k to 4M cells: 7–9 → 4–5
 	// around a cylinder and a NACA section); on the velocity potential it helped thin bodies
-	// (CG around a thin cambered vane 20 → 13 iterations) but cost a cylinder two (8 → 10), and
-	// SolvePhi leaves it off.
+	// (CG around a thin cambered vane 20 → 13 iterations) but cost a cylinder two (8 → 10):
+	// SolvePhi uses it only around slender bodies (slenderBody).
 	OperatorWeights bool
 }
 
