@@ -3,6 +3,7 @@ package solver
 import (
 	"cmp"
 	"math"
+	"math/bits"
 	"slices"
 )
 
@@ -96,9 +97,9 @@ func newTransfer(nx, ny int, irregular func(visit func(i, j int)), row func(i, j
 	// those of its neighbours, which follow their own rows).
 	words := (nx*ny + 63) / 64
 	cand := make([]uint64, words)
-	any := false
+	found := false
 	irregular(func(i, j int) {
-		any = true
+		found = true
 		for y := max(0, j-2); y <= min(ny-1, j+2); y++ {
 			for x := max(0, i-2); x <= min(nx-1, i+2); x++ {
 				k := y*nx + x
@@ -106,17 +107,17 @@ func newTransfer(nx, ny int, irregular func(visit func(i, j int)), row func(i, j
 			}
 		}
 	})
-	if !any {
+	if !found {
 		return nil
 	}
 	own := map[int][2][2]float64{}
 	var buf [9]stepEntry
 	// The nodes between two coarse nodes first, then the cell centres, which use them.
 	for pass := range 2 {
-		for w, bits := range cand {
-			for bits != 0 {
-				b := bitsTrailing(bits)
-				bits &= bits - 1
+		for w, word := range cand {
+			for word != 0 {
+				b := bits.TrailingZeros64(word)
+				word &= word - 1
 				k := w*64 + b
 				i, j := k%nx, k/nx
 				centre := i&1 == 1 && j&1 == 1
@@ -183,16 +184,6 @@ func nearlyBilinear(w [2][2]float64, i, j int) bool {
 		}
 	}
 	return true
-}
-
-// bitsTrailing returns the index of the lowest set bit of x (x ≠ 0).
-func bitsTrailing(x uint64) int {
-	n := 0
-	for x&1 == 0 {
-		x >>= 1
-		n++
-	}
-	return n
 }
 
 // edgeWeights returns the weights of node (i, j), between two coarse nodes along x (i odd) or y
