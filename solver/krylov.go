@@ -76,8 +76,12 @@ type Stats struct {
 }
 
 // cgStallLimit is how many successive restarts of CG may fail to halve the true residual before
-// the solve is reported as stalled.
-const cgStallLimit = 3
+// the solve is reported as stalled. One is enough: a restart is confirmed only once the recursive
+// residual has passed the tolerance again, so a true residual that has not halved by then sits on
+// its floor, and the floor is accepted only within the rounding bound (roundingFloor). Measured on
+// the φ solve of a 16M-cell channel: 10 iterations with three restarts, 8 with one, the same
+// residual (1.55e-10) either way.
+const cgStallLimit = 1
 
 // ErrNotConverged is returned, possibly wrapped, when a solve used up its iterations before the
 // relative residual reached the tolerance, or stalled on its rounding floor. x then holds the best
