@@ -177,23 +177,32 @@ func roundingFloor(a Operator, dst, b, x []float64) (float64, bool) {
 // Memory: CG keeps 3 vectors of the operator's length (the preconditioner's output shares the
 // operator product's), BiCGStab 6 (7 with a preconditioner): the residual, the search direction
 // and the operator's product, BiCGStab also the shadow residual, the second product and the best
-// iterate, and with a preconditioner its output. A solve with a workspace that is large enough allocates nothing of grid size.
+// iterate (none when lastIterate is set), and with a preconditioner its output. A solve with a workspace that is large enough allocates nothing of grid size.
 //
 // A Workspace serves one solve at a time; its vectors never alias the caller's b and x.
 type Workspace struct {
 	buf []float64
 	k   kernels // the parallel vector and matrix kernels (krylov_par.go)
+	// lastIterate makes BiCGStab keep no best iterate: one vector less, and no copy of x in the
+	// steps; a solve that does not converge then returns its last iterate. The bordered ψ
+	// solve sets it (it converges in 4–6 steps, and the run stops on a failed solve anyway):
+	// a 16M-cell channel maps 128 MB less.
+	lastIterate bool
 }
 
 // cgVectors and bicgstabVectors return the number of work vectors of CG and BiCGStab, with or
 // without a preconditioner.
 func cgVectors(bool) int { return 3 }
 
-func bicgstabVectors(precon bool) int {
+func (w *Workspace) bicgstabVectors(precon bool) int {
+	n := 6
 	if precon {
-		return 7
+		n++
 	}
-	return 6
+	if w.lastIterate {
+		n--
+	}
+	return n
 }
 
 // ReserveCG grows w, if it is smaller, to the work vectors of a preconditioned CG solve of n
@@ -207,13 +216,13 @@ func (w *Workspace) ReserveCG(n int) {
 	w.reserve(cgVectors(true) * n)
 }
 
-// ReserveBiCGStab is ReserveCG for a preconditioned BiCGStab solve (7n values), which is also
-// enough for CG.
+// ReserveBiCGStab is ReserveCG for a preconditioned BiCGStab solve (7n values, 6n for a
+// workspace that keeps no best iterate), which is also enough for CG.
 func (w *Workspace) ReserveBiCGStab(n int) {
 	if n < 0 {
 		panic(fmt.Sprintf("solver: Workspace.ReserveBiCGStab: n must be >= 0, got %d", n))
 	}
-	w.reserve(bicgstabVectors(true) * n)
+	w.reserve(w.bicgstabVectors(true) * n)
 }
 
 // reserve grows w to size values and touches the new memory.
@@ -443,16 +452,21 @@ func (w *Workspace) BiCGStab(ctx context.Context, a Operator, b, x []float64, m 
 		return st, fmt.Errorf("%w: %s: right-hand side has a non-finite entry or overflows ‖b‖", ErrBreakdown, method)
 	}
 
-	w.grow(bicgstabVectors(m != nil) * n)
+	w.grow(w.bicgstabVectors(m != nil) * n)
 	r := w.vector(0, n)    // residual; holds s = r − α v between the half steps
 	rhat := w.vector(1, n) // shadow residual r̂
 	p := w.vector(2, n)    // search direction
 	v := w.vector(3, n)    // A M⁻¹ p
 	t := w.vector(4, n)    // A M⁻¹ s
-	xBest := w.vector(5, n)
+	var xBest []float64
+	next := 5
+	if !w.lastIterate {
+		xBest = w.vector(next, n)
+		next++
+	}
 	var z []float64 // M⁻¹ p, then M⁻¹ s
 	if m != nil {
-		z = w.vector(6, n)
+		z = w.vector(next, n)
 	}
 
 	rnorm := w.k.residual(a, r, b, x)
@@ -465,14 +479,15 @@ func (w *Workspace) BiCGStab(ctx context.Context, a Operator, b, x []float64, m 
 		return st, nil
 	}
 	// xBest holds the iterate of smallest recursive residual, bestRes, unless bestInX: then x
-	// is that iterate, and the next step that moves x saves it in the same pass.
+	// is that iterate, and the next step that moves x saves it in the same pass. Without xBest
+	// (lastIterate), x is all there is.
 	bestInX := true
 	bestRes := rnorm / bnorm
 
 	// finish puts into x the better (by true residual) of x and xBest and records its residual.
 	finish := func(err error) (Stats, error) {
 		res := w.k.residual(a, t, b, x) / bnorm
-		if !bestInX && (bestRes < res || !isFinite(res)) {
+		if xBest != nil && !bestInX && (bestRes < res || !isFinite(res)) {
 			if bres := w.k.residual(a, t, b, xBest) / bnorm; bres < res || !isFinite(res) {
 				w.k.copy(x, xBest)
 				res = bres
@@ -555,7 +570,7 @@ func (w *Workspace) BiCGStab(ctx context.Context, a Operator, b, x []float64, m 
 
 		// x += α p̂, s = r − α v (stored in r)
 		var ss float64
-		if bestInX {
+		if bestInX && xBest != nil {
 			ss = w.k.stepSave(x, r, alpha, phat, v, xBest)
 			bestInX = false
 		} else {

@@ -672,8 +672,61 @@ func TestWorkspaceSameBits(t *testing.T) {
 			}
 		})
 	}
-	if len(w.buf) != bicgstabVectors(true)*psi.A.N {
-		t.Errorf("workspace: got %d values, want the %d reserved (no case needs more)", len(w.buf), bicgstabVectors(true)*psi.A.N)
+	if len(w.buf) != (&Workspace{}).bicgstabVectors(true)*psi.A.N {
+		t.Errorf("workspace: got %d values, want the %d reserved (no case needs more)", len(w.buf), (&Workspace{}).bicgstabVectors(true)*psi.A.N)
+	}
+}
+
+// TestWorkspaceLastIterate: a workspace that keeps no best iterate needs one vector less, gives
+// the same bits as the default one on a solve that converges (the best iterate is never read
+// then), and on one that does not returns an iterate whose reported residual is its own true
+// residual and no smaller than the default's (which returns the better of the last and the best).
+func TestWorkspaceLastIterate(t *testing.T) {
+	sw := shortleyWeller(32)
+	psi := mgPassageCylinder.psi(t, 6000)
+	mgPsi, err := NewMultigrid(psi.A, psi.Mesh.Grid, psi.Nodes, MGOptions{OperatorWeights: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	tests := []struct {
+		name string
+		a    *CSR
+		b    []float64
+		m    Preconditioner
+		s    *Settings
+	}{
+		{"mg psi", psi.A.CSR(), psiRightHandSides(psi)[0], mgPsi, nil},
+		{"jacobi shortley-weller", sw.a, sw.b, NewJacobi(sw.a), nil},
+		{"jacobi shortley-weller not converged", sw.a, sw.b, NewJacobi(sw.a), &Settings{MaxIterations: 3}},
+	}
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			var full Workspace
+			last := Workspace{lastIterate: true}
+			last.ReserveBiCGStab(tt.a.N)
+			if want := (full.bicgstabVectors(true) - 1) * tt.a.N; len(last.buf) != want {
+				t.Errorf("reserved %d values, want %d", len(last.buf), want)
+			}
+			want := make([]float64, tt.a.N)
+			wantSt, wantErr := full.BiCGStab(context.Background(), tt.a, tt.b, want, tt.m, tt.s)
+			got := make([]float64, tt.a.N)
+			st, err := last.BiCGStab(context.Background(), tt.a, tt.b, got, tt.m, tt.s)
+			if len(last.buf) != (full.bicgstabVectors(true)-1)*tt.a.N {
+				t.Errorf("the solve grew the workspace to %d values", len(last.buf))
+			}
+			if wantErr == nil {
+				if err != nil || st != wantSt || !sameBits(got, want) {
+					t.Errorf("got %+v, %v, same bits %v; want %+v and the default's bits", st, err, sameBits(got, want), wantSt)
+				}
+				return
+			}
+			if !errors.Is(err, ErrNotConverged) || st.Iterations != wantSt.Iterations {
+				t.Fatalf("got %+v, %v; want ErrNotConverged after %d iterations", st, err, wantSt.Iterations)
+			}
+			if own := trueRelResidual(tt.a, tt.b, got); math.Abs(st.Residual-own) > 1e-12*own || st.Residual < wantSt.Residual {
+				t.Errorf("residual %.12g, own true residual %.12g, default's %.12g", st.Residual, own, wantSt.Residual)
+			}
+		})
 	}
 }
 
@@ -775,7 +828,7 @@ func TestWorkspaceReserve(t *testing.T) {
 		if _, err := w.BiCGStab(context.Background(), p.a, p.b, make([]float64, p.a.Len()), NewJacobi(p.a), nil); err != nil {
 			t.Fatal(err)
 		}
-		if want := bicgstabVectors(true) * p.a.Len(); len(w.buf) != want {
+		if want := (&Workspace{}).bicgstabVectors(true) * p.a.Len(); len(w.buf) != want {
 			t.Errorf("got %d values, want %d", len(w.buf), want)
 		}
 	})

@@ -350,7 +350,7 @@ var psiBordered = true
 func (sys *PsiSystem) solveWithConstants(ctx context.Context, method string, contours []contour, set *Settings, start time.Time) ([]float64, *PsiSolution, error) {
 	n := len(sys.Nodes)
 	// The work vectors come first: the hierarchy forms its coarse operators in them.
-	ws := new(Workspace)
+	ws := &Workspace{lastIterate: true}
 	ws.ReserveBiCGStab(n + len(sys.BK))
 	mg, err := NewMultigrid(sys.A, sys.Mesh.Grid, sys.Nodes, MGOptions{Scratch: ws.buf, OperatorWeights: true})
 	if err != nil {
