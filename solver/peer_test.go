@@ -395,8 +395,8 @@ func peerPipeline(ctx context.Context, spacing float64) (peerPipelineRun, error)
 //	dot product        2v; axpy-like update 3v; x += αp, r −= αq with ‖r‖²: 6v; copy 2v
 //
 // BiCGStab (krylov.go), per iteration: p = r + β(p − ωv) 4v; M⁻¹p; v = A p̂ with r̂·v, v·v;
-// x += αp̂, s = r − αv, saving the best iterate on the way 7v; M⁻¹s; t = A ŝ with t·s, t·t;
-// x += ωŝ, r = s − ωt with r̂·r 7v. Per solve: ‖b‖ v, the first and the final true residual;
+// x += αp̂, s = r − αv, saving the best iterate on the way 7v (6v in the bordered ψ solve, which
+// keeps no best iterate); M⁻¹s; t = A ŝ with t·s, t·t; x += ωŝ, r = s − ωt with r̂·r 7v. Per solve: ‖b‖ v, the first and the final true residual;
 // per restart one true residual. (The first iteration's fresh start copies r into r̂ and p and
 // takes one dot product, 6v, about a regular direction update.)
 //
@@ -472,11 +472,16 @@ func newPeerTraffic(a *GridMatrix, mg *Multigrid) (peerTraffic, error) {
 // residual returns the bytes of b − A x.
 func (tr peerTraffic) residual() float64 { return tr.matrix + 3*tr.vector }
 
-// bicgstab returns the bytes of one BiCGStab solve with statistics st.
-func (tr peerTraffic) bicgstab(st Stats) float64 {
+// bicgstab returns the bytes of one BiCGStab solve with statistics st, which keeps its best
+// iterate if best is set.
+func (tr peerTraffic) bicgstab(st Stats, best bool) float64 {
 	v := tr.vector
 	mul := tr.matrix + 3*v
-	iter := 4*v + tr.vcycle + mul + 7*v + tr.vcycle + mul + 7*v
+	half := 6 * v // x += αp̂, s = r − αv
+	if best {
+		half += v
+	}
+	iter := 4*v + tr.vcycle + mul + half + tr.vcycle + mul + 7*v
 	fixed := v + 2*tr.residual()
 	return fixed + float64(st.Restarts)*tr.residual() + float64(st.Iterations)*iter
 }
@@ -518,16 +523,19 @@ func peerPsiTraffic(sol *PsiSolution) (peerBandwidth, error) {
 		return peerBandwidth{}, err
 	}
 	b := peerBandwidth{seconds: sol.Solve.Seconds(), solves: len(sol.Solves)}
+	nb := len(sys.BK)
+	bordered := nb > 0 && len(sol.Solves) == 1
 	for _, st := range sol.Solves {
-		b.bytes += tr.bicgstab(st)
+		b.bytes += tr.bicgstab(st, !bordered)
 		b.iters += st.Iterations
 	}
-	if nb := len(sys.BK); nb > 0 && len(sol.Solves) == 1 {
-		// The bordered solve (psi_bordered.go): Z = M⁻¹BK once (a V-cycle per body, BK expanded),
-		// the initial guess written, and in each of the two preconditioner solves per iteration
-		// x += Σ c_b z_b (z read, x read and written).
+	if bordered {
+		// The bordered solve (psi_bordered.go): Z = M⁻¹BK once (a V-cycle per body, BK expanded,
+		// the result rounded into float32 z), the initial guess written, and in each of the two
+		// preconditioner solves per iteration x += Σ c_b z_b (z read, 4 bytes an unknown; x read
+		// and written).
 		v := tr.vector
-		b.bytes += float64(nb)*(tr.vcycle+2*v) + v + float64(b.iters)*2*float64(nb)*3*v
+		b.bytes += float64(nb)*(tr.vcycle+2*v+1.5*v) + v + float64(b.iters)*2*float64(nb)*2.5*v
 	}
 	return b, nil
 }
