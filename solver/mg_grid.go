@@ -4,6 +4,7 @@ import (
 	"fmt"
 
 	"phipsi/internal/pages"
+	"phipsi/internal/par"
 )
 
 // Kernels of a coarse level, run block by block by gridLevel.runBlock.
@@ -478,36 +479,49 @@ func stencilEntries(s *stencil64, ent []stepEntry) []stepEntry {
 	return ent
 }
 
+// finishRowsMin is the number of padded rows from which finish shares its rows out.
+const finishRowsMin = 64
+
 // finish stores the level's operator for the V-cycle: symmetrised when symmetric is set
 // (A_c(C, D) and A_c(D, C) are equal in exact arithmetic and are made equal bit for bit, so that
 // the level's Gauss–Seidel sweeps are exact adjoints of each other), rounded to float32, with
 // invD the inverse of the rounded diagonal. The float64 operator is dropped.
 func (lv *gridLevel) finish(symmetric bool) error {
-	if symmetric {
-		for k := range lv.st64 {
+	lv.st = pages.Make[stencil](len(lv.st64))
+	// Rows of the padded grid are shared out: each node's entries are formed from the float64
+	// operator alone, which no range writes, so the result does not depend on the ranges. An
+	// entry and its mirror are averaged in the same order of operands' sum (commutative), which
+	// gives them the same bits.
+	errs := make([]error, par.Ranges(lv.ny+3, finishRowsMin))
+	par.Rows(lv.ny+3, finishRowsMin, func(r, lo, hi int) {
+		for k := lo * lv.sx; k < hi*lv.sx; k++ {
 			if lv.invD[k] == 0 {
 				continue
 			}
-			for d := range 9 {
-				kn := k + (d/3-1)*lv.sx + d%3 - 1
-				avg := 0.5 * (lv.st64[k][d] + lv.st64[kn][8-d])
-				lv.st64[k][d], lv.st64[kn][8-d] = avg, avg
+			s := &lv.st64[k]
+			var diag float64
+			for d, v := range s {
+				if symmetric {
+					kn := k + (d/3-1)*lv.sx + d%3 - 1
+					v = 0.5 * (v + lv.st64[kn][8-d])
+				}
+				if d == 4 {
+					diag = v
+				}
+				lv.st[k][d] = float32(v)
 			}
+			d := float64(lv.st[k][4])
+			if !(d > 0) || !isFinite(d) {
+				errs[r] = fmt.Errorf("solver: multigrid: coarse level of %d × %d nodes: diagonal at node %d must be a positive float32, got %g", lv.nx, lv.ny, k, diag)
+				return
+			}
+			lv.invD[k] = 1 / d
 		}
-	}
-	lv.st = pages.Make[stencil](len(lv.st64))
-	for k, s := range lv.st64 {
-		if lv.invD[k] == 0 {
-			continue
+	})
+	for _, err := range errs {
+		if err != nil {
+			return err
 		}
-		for d, v := range s {
-			lv.st[k][d] = float32(v)
-		}
-		d := float64(lv.st[k][4])
-		if !(d > 0) || !isFinite(d) {
-			return fmt.Errorf("solver: multigrid: coarse level of %d × %d nodes: diagonal at node %d must be a positive float32, got %g", lv.nx, lv.ny, k, s[4])
-		}
-		lv.invD[k] = 1 / d
 	}
 	lv.st64, lv.uniform = nil, nil
 	lv.standardRuns()
