@@ -33,6 +33,8 @@ type Set struct {
 	Outer func(p mesh.Point) float64
 	// Prescribed, when set, gives every body the boundary value ψ = Prescribed(p) instead of an
 	// unknown constant (manufactured solutions); the body conditions are then ignored.
+	// Outer and Prescribed are called from several goroutines at once (assembly and the
+	// expansion of the solution to the grid share the rows out).
 	Prescribed func(p mesh.Point) float64
 }
 

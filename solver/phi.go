@@ -8,6 +8,7 @@ import (
 
 	"phipsi/bc"
 	"phipsi/internal/pages"
+	"phipsi/internal/par"
 	"phipsi/mesh"
 )
 
@@ -576,23 +577,26 @@ func (sys *PhiSystem) InitialGuess(dst []float64) {
 	for i := g.NX - 2; i >= 0; i-- {
 		col[i] = col[i+1] - q*g.H*0.5*(inv(i)+inv(i+1))
 	}
-	for u, node := range sys.Nodes {
-		k := int(node)
-		i, j := k%g.NX, k/g.NX
-		v := col[i]
-		p := g.At(i, j)
-		for _, c := range sys.Cuts {
-			if !c.ToOutlet {
-				continue
+	par.Rows(len(sys.Nodes), nodeLoopMin, func(_, u0, u1 int) {
+		rows := newRowTracker(g.NX, sys.Nodes, u0, u1)
+		for u := u0; u < u1; u++ {
+			i, j := rows.at(int(sys.Nodes[u]))
+			v := col[i]
+			p := g.At(i, j)
+			for _, c := range sys.Cuts {
+				// A cut without circulation would add +0 (col is never −0): skipped.
+				if !c.ToOutlet || c.Circulation == 0 {
+					continue
+				}
+				th := math.Atan2(p.Y-c.Y, p.X-c.X0)
+				if th < 0 {
+					th += 2 * math.Pi
+				}
+				v += c.Circulation * th / (2 * math.Pi)
 			}
-			th := math.Atan2(p.Y-c.Y, p.X-c.X0)
-			if th < 0 {
-				th += 2 * math.Pi
-			}
-			v += c.Circulation * th / (2 * math.Pi)
+			dst[u] = v
 		}
-		dst[u] = v
-	}
+	})
 }
 
 // PhiSolution is the solved velocity potential.
@@ -728,14 +732,16 @@ func (sys *PhiSystem) Release() {
 func (sys *PhiSystem) expand(x []float64) []float64 {
 	m := sys.Mesh
 	phi := pages.Make[float64](m.Len())
-	for k := range phi {
-		switch {
-		case !m.IsFluid(k):
-		case sys.Unknown[k] >= 0:
-			phi[k] = x[sys.Unknown[k]]
-		case sys.Dirichlet[k]:
-			phi[k] = sys.Known(k)
+	par.Rows(len(phi), nodeLoopMin, func(_, k0, k1 int) {
+		for k := k0; k < k1; k++ {
+			switch {
+			case !m.IsFluid(k):
+			case sys.Unknown[k] >= 0:
+				phi[k] = x[sys.Unknown[k]]
+			case sys.Dirichlet[k]:
+				phi[k] = sys.Known(k)
+			}
 		}
-	}
+	})
 	return phi
 }

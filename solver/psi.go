@@ -13,6 +13,7 @@ import (
 
 	"phipsi/bc"
 	"phipsi/internal/pages"
+	"phipsi/internal/par"
 	"phipsi/mesh"
 )
 
@@ -255,6 +256,35 @@ const (
 	MethodSOR    = "sor"  // red–black SOR with the optimal ω of the grid
 	MethodMG     = "mgcg" // multigrid-preconditioned Krylov
 )
+
+// nodeLoopMin is the number of nodes (or unknowns) from which the loops that treat each on its
+// own (initial guesses, expansions to the grid) share them out over the cores.
+const nodeLoopMin = 1 << 16
+
+// rowTracker gives the grid column and row of the nodes of a run of unknowns in increasing node
+// order without dividing: the row only ever moves forward.
+type rowTracker struct {
+	nx, j, next int // next = (j+1)·nx, the first node of the row after j
+}
+
+// newRowTracker starts a tracker at the node of unknown q0 of nodes (none if q0 = q1).
+func newRowTracker(nx int, nodes []int32, q0, q1 int) rowTracker {
+	t := rowTracker{nx: nx}
+	if q0 < q1 {
+		t.j = int(nodes[q0]) / nx
+	}
+	t.next = (t.j + 1) * nx
+	return t
+}
+
+// at returns the column and row of node k, which must not be below the last node asked for.
+func (t *rowTracker) at(k int) (i, j int) {
+	for k >= t.next {
+		t.j++
+		t.next += t.nx
+	}
+	return k - (t.next - t.nx), t.j
+}
 
 // collectFrom is the number of unknowns from which the solves collect garbage between their
 // stages (collectLarge): below it the memory does not matter.
@@ -531,10 +561,13 @@ func (sys *PsiSystem) initialGuess(x []float64) {
 	for i := range g.NX {
 		lo[i], hi[i] = geo.Lower.Y(g.X(i)), geo.Upper.Y(g.X(i))
 	}
-	for q, node := range sys.Nodes {
-		i, j := int(node)%g.NX, int(node)/g.NX
-		x[q] = sys.linearPsi(g.Y(j), lo[i], hi[i])
-	}
+	par.Rows(len(sys.Nodes), nodeLoopMin, func(_, q0, q1 int) {
+		rows := newRowTracker(g.NX, sys.Nodes, q0, q1)
+		for q := q0; q < q1; q++ {
+			i, j := rows.at(int(sys.Nodes[q]))
+			x[q] = sys.linearPsi(g.Y(j), lo[i], hi[i])
+		}
+	})
 }
 
 // guessAt returns the initial guess's ψ at (x, y) (initialGuess's value at a node).
@@ -554,21 +587,25 @@ func (sys *PsiSystem) expand(x, bodyPsi []float64) []float64 {
 	m := sys.Mesh
 	g := m.Grid
 	psi := pages.Make[float64](g.Len())
-	for k := range psi {
-		i, j := k%g.NX, k/g.NX
-		switch {
-		case sys.Unknown[k] >= 0:
-			psi[k] = x[sys.Unknown[k]]
-		case m.Kind[k] == mesh.Fluid: // inlet column, or outlet under Outer
-			psi[k] = sys.knownNode(i, j)
-		default:
-			owner := int(m.Owner[k])
-			c := 0.0
-			if owner >= 2 && owner-2 < len(bodyPsi) {
-				c = bodyPsi[owner-2]
+	par.Rows(g.NY, max(1, nodeLoopMin/g.NX), func(_, j0, j1 int) {
+		for j := j0; j < j1; j++ {
+			for i := range g.NX {
+				k := j*g.NX + i
+				switch {
+				case sys.Unknown[k] >= 0:
+					psi[k] = x[sys.Unknown[k]]
+				case m.Kind[k] == mesh.Fluid: // inlet column, or outlet under Outer
+					psi[k] = sys.knownNode(i, j)
+				default:
+					owner := int(m.Owner[k])
+					c := 0.0
+					if owner >= 2 && owner-2 < len(bodyPsi) {
+						c = bodyPsi[owner-2]
+					}
+					psi[k] = sys.knownValue(owner, g.At(i, j), c)
+				}
 			}
-			psi[k] = sys.knownValue(owner, g.At(i, j), c)
 		}
-	}
+	})
 	return psi
 }

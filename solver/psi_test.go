@@ -346,3 +346,19 @@ func TestPsiPlainRowsSameBits(t *testing.T) {
 		})
 	}
 }
+
+// TestRowTracker: the tracker's column and row are those of division, for nodes that skip
+// whole rows and a run that starts inside a row.
+func TestRowTracker(t *testing.T) {
+	const nx = 7
+	nodes := []int32{3, 4, 6, 7, 20, 21, 49, 50, 51, 90}
+	for q0 := range nodes {
+		rows := newRowTracker(nx, nodes, q0, len(nodes))
+		for _, k := range nodes[q0:] {
+			i, j := rows.at(int(k))
+			if i != int(k)%nx || j != int(k)/nx {
+				t.Fatalf("from unknown %d: node %d at (%d, %d), want (%d, %d)", q0, k, i, j, int(k)%nx, int(k)/nx)
+			}
+		}
+	}
+}
