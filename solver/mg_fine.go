@@ -5,6 +5,7 @@ import (
 	"slices"
 
 	"phipsi/internal/pages"
+	"phipsi/internal/par"
 	"phipsi/mesh"
 )
 
@@ -64,16 +65,19 @@ func newFineLevel(a *GridMatrix, g mesh.Grid, nodes []int32) (*fineLevel, error)
 		meta:     make([]uint8, a.N),
 		stride:   nx + 3,
 	}
-	for _, k := range nodes {
-		f.rowStart[int(k)/nx+1]++
-	}
-	for j := range ny {
-		f.rowStart[j+1] += f.rowStart[j]
+	// The unknowns are in node order: row j's start is the first unknown at or after its first node.
+	for j := range ny + 1 {
+		start, _ := slices.BinarySearch(nodes, int32(min(j*nx, g.Len())))
+		f.rowStart[j] = int32(start)
 	}
 	// Plain rows couple only to their four neighbours with a positive diagonal; the others are
-	// checked entry by entry.
+	// checked entry by entry (64 plain rows at a time are skipped by their word of flags).
 	nine := false
-	for u := range a.N {
+	for u := 0; u < a.N; u++ {
+		if w := a.plain[u>>6]; w == ^uint64(0) && u&63 == 0 && u+64 <= a.N {
+			u += 63
+			continue
+		}
 		r := a.other(u)
 		if r < 0 {
 			continue
@@ -102,16 +106,18 @@ func newFineLevel(a *GridMatrix, g mesh.Grid, nodes []int32) (*fineLevel, error)
 	if nine {
 		f.ncolour = 4
 	}
-	for j := range ny {
-		for u := int(f.rowStart[j]); u < int(f.rowStart[j+1]); u++ {
-			i := int(nodes[u]) - j*nx
-			if nine {
-				f.meta[u] = uint8(i&1 | (j&1)<<1)
-			} else {
-				f.meta[u] = uint8((i + j) & 1)
+	par.Rows(ny, max(1, nodeLoopMin/nx), func(_, j0, j1 int) {
+		for j := j0; j < j1; j++ {
+			for u := int(f.rowStart[j]); u < int(f.rowStart[j+1]); u++ {
+				i := int(nodes[u]) - j*nx
+				if nine {
+					f.meta[u] = uint8(i&1 | (j&1)<<1)
+				} else {
+					f.meta[u] = uint8((i + j) & 1)
+				}
 			}
 		}
-	}
+	})
 	f.rowRun = make([]int32, ny+1)
 	r := 0
 	for j := range ny + 1 {
