@@ -5,7 +5,6 @@ import (
 	"errors"
 	"fmt"
 	"math"
-	"runtime"
 	"slices"
 	"time"
 
@@ -297,7 +296,7 @@ const collectFrom = 1 << 18
 // arithmetic, and a collection of the solver's pointer-free arrays takes about a millisecond.
 func collectLarge(n int) {
 	if n >= collectFrom {
-		runtime.GC()
+		pages.Collect()
 	}
 }
 

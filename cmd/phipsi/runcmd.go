@@ -6,8 +6,6 @@ import (
 	"io"
 	"os"
 	"path/filepath"
-	"runtime"
-	"runtime/debug"
 	"slices"
 	"strings"
 	"time"
@@ -17,6 +15,7 @@ import (
 	"phipsi/cmd/internal/render"
 	"phipsi/cmd/internal/report"
 	"phipsi/cmd/internal/scenario"
+	"phipsi/internal/pages"
 	"phipsi/mesh"
 	"phipsi/solver"
 	"phipsi/solver/flow"
@@ -173,10 +172,11 @@ func compute(ctx context.Context, plan *scenario.Plan, o *runOptions, stderr io.
 	// heap reaches the estimate. Measured against GOGC = 25 (6 × 1 channel, medians of 3
 	// interleaved runs, page faults from /usr/bin/time): 1M cells 1.29 → 1.22 s, 49k → 39k
 	// faults, peak 142 → 159 MB; 4M cells 4.48 → 4.13 s, 164k → 130k faults, peak 511 → 527 MB.
-	// A GOGC or GOMEMLIMIT set in the environment wins.
+	// Between collections the limit is lifted to --max-memory (pages.Collect tells why: the
+	// scavenger would otherwise hand back what the next stage reuses). A GOGC or GOMEMLIMIT set
+	// in the environment wins.
 	if os.Getenv("GOGC") == "" && os.Getenv("GOMEMLIMIT") == "" {
-		defer debug.SetGCPercent(debug.SetGCPercent(-1))
-		defer debug.SetMemoryLimit(debug.SetMemoryLimit(plan.Memory))
+		defer pages.SetBudget(plan.Memory, int64(o.maxMemory))()
 	}
 	sc := plan.Scenario
 	m, set, err := plan.Build()
@@ -199,7 +199,7 @@ func compute(ctx context.Context, plan *scenario.Plan, o *runOptions, stderr io.
 	// allocates, so that it reuses their pages: on these machines fresh memory costs more to touch
 	// than most stages take to compute (about 0.35 GB/s against 20 GB/s for memory already mapped).
 	sys.Release()
-	runtime.GC()
+	pages.Collect()
 	phiSys, err := solver.AssemblePhi(m, set, sol.Circulation, nil)
 	if err != nil {
 		return nil, err
@@ -211,7 +211,7 @@ func compute(ctx context.Context, plan *scenario.Plan, o *runOptions, stderr io.
 		return nil, err
 	}
 	phiSys.Release()
-	runtime.GC()
+	pages.Collect()
 	res, err := flow.Derive(sol, flow.Fluid{Density: sc.Fluid.Density, Pressure: sc.Inflow.Pressure})
 	if err != nil {
 		return nil, err

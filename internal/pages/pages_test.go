@@ -1,6 +1,9 @@
 package pages
 
 import (
+	"math"
+	"runtime"
+	"runtime/debug"
 	"slices"
 	"testing"
 )
@@ -20,4 +23,44 @@ func TestMakeZeroed(t *testing.T) {
 			t.Fatalf("Touch(%d): a non-zero value", n)
 		}
 	}
+}
+
+// TestBudget: under a budget the pacing is off and the limit is the ceiling, also after a
+// collection (which runs against the lower limit); restore brings back the previous settings,
+// and without a budget Collect only collects.
+func TestBudget(t *testing.T) {
+	prevGC := debug.SetGCPercent(100)
+	prevLimit := debug.SetMemoryLimit(math.MaxInt64)
+	defer debug.SetGCPercent(prevGC)
+	defer debug.SetMemoryLimit(prevLimit)
+
+	Collect() // no budget: limit and pacing untouched
+	if got := debug.SetMemoryLimit(-1); got != math.MaxInt64 {
+		t.Errorf("without a budget: limit %d, want unchanged", got)
+	}
+	restore := SetBudget(1<<30, 4<<30)
+	if got := debug.SetGCPercent(-1); got != -1 {
+		t.Errorf("under a budget: GC percent %d, want -1 (off)", got)
+	}
+	before := readGCs()
+	Collect()
+	if got := debug.SetMemoryLimit(-1); got != 4<<30 {
+		t.Errorf("after Collect: limit %d, want the ceiling %d", got, 4<<30)
+	}
+	if readGCs() == before {
+		t.Errorf("Collect did not collect")
+	}
+	restore()
+	if got := debug.SetMemoryLimit(-1); got != math.MaxInt64 {
+		t.Errorf("after restore: limit %d, want %d", got, int64(math.MaxInt64))
+	}
+	if got := debug.SetGCPercent(100); got != 100 {
+		t.Errorf("after restore: GC percent %d, want 100", got)
+	}
+}
+
+func readGCs() uint32 {
+	var ms runtime.MemStats
+	runtime.ReadMemStats(&ms)
+	return ms.NumGC
 }
