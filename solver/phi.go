@@ -493,27 +493,9 @@ func (sys *PhiSystem) wholeInterior(i, j int) bool {
 func (sys *PhiSystem) isolate(anchored []bool, inflow []float64) error {
 	a := sys.A
 	nu := a.Len()
-	reached := make([]bool, nu)
-	queue := make([]int32, 0, nu)
-	for u, ok := range anchored {
-		if ok {
-			reached[u] = true
-			queue = append(queue, int32(u))
-		}
-	}
+	reached := connectedTo(a, anchored)
 	var cbuf [5]int32
 	var vbuf [5]float64
-	for len(queue) > 0 {
-		u := queue[len(queue)-1]
-		queue = queue[:len(queue)-1]
-		cols, vals := a.Row(int(u), cbuf[:], vbuf[:])
-		for q, v := range cols {
-			if !reached[v] && vals[q] != 0 {
-				reached[v] = true
-				queue = append(queue, v)
-			}
-		}
-	}
 	lost := 0
 	for u, ok := range reached {
 		if ok {
@@ -545,6 +527,36 @@ func (sys *PhiSystem) isolate(anchored []bool, inflow []float64) error {
 	}
 	sys.A = bld.Matrix()
 	return nil
+}
+
+// connectedTo reports for each unknown of a whether a chain of non-zero couplings joins it to an
+// unknown marked in anchored: a depth-first search from the anchored unknowns. (A union–find in
+// one pass over the rows in memory order took as long on a 16M-cell channel, 0.31–0.33 s against
+// 0.28–0.31 s: both wait on memory.)
+func connectedTo(a *GridMatrix, anchored []bool) []bool {
+	nu := a.Len()
+	reached := make([]bool, nu)
+	queue := make([]int32, 0, nu)
+	for u, ok := range anchored {
+		if ok {
+			reached[u] = true
+			queue = append(queue, int32(u))
+		}
+	}
+	var cbuf [5]int32
+	var vbuf [5]float64
+	for len(queue) > 0 {
+		u := queue[len(queue)-1]
+		queue = queue[:len(queue)-1]
+		cols, vals := a.Row(int(u), cbuf[:], vbuf[:])
+		for q, v := range cols {
+			if !reached[v] && vals[q] != 0 {
+				reached[v] = true
+				queue = append(queue, v)
+			}
+		}
+	}
+	return reached
 }
 
 // InitialGuess writes the solve's first estimate of the unknowns into dst (of length the number

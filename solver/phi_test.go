@@ -5,6 +5,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"math/rand/v2"
 	"slices"
 	"testing"
 
@@ -594,5 +595,91 @@ func TestSlenderBody(t *testing.T) {
 	}
 	if slenderBody(&mesh.Geometry{}) {
 		t.Error("no body: slender, want not")
+	}
+}
+
+// TestConnectedTo compares connectedTo (the reachability that AssemblePhi's isolate relies on)
+// with a breadth-first search over the links on grids whose links are open at random (some
+// closed links stored as zero entries): the unknowns joined to an anchored one must be the same,
+// plain rows (four open links) included.
+func TestConnectedTo(t *testing.T) {
+	g := mesh.Grid{H: 1, NX: 40, NY: 30}
+	n := g.Len()
+	nodes := make([]int32, n)
+	unknown := make([]int32, n)
+	for k := range nodes {
+		nodes[k], unknown[k] = int32(k), int32(k)
+	}
+	for seed := range uint64(20) {
+		rng := rand.New(rand.NewPCG(seed, 3))
+		open := 0.55 + 0.4*rng.Float64() // from many pockets to one connected grid
+		east, north := make([]bool, n), make([]bool, n)
+		for k := range n {
+			i, j := k%g.NX, k/g.NX
+			east[k] = i < g.NX-1 && rng.Float64() < open
+			north[k] = j < g.NY-1 && rng.Float64() < open
+		}
+		neighbours := func(k int) (nb []int, closed []int) {
+			i, j := k%g.NX, k/g.NX
+			for _, l := range []struct {
+				ok, exists bool
+				nb         int
+			}{
+				{j > 0 && north[k-g.NX], j > 0, k - g.NX},
+				{i > 0 && east[k-1], i > 0, k - 1},
+				{east[k], i < g.NX-1, k + 1},
+				{north[k], j < g.NY-1, k + g.NX},
+			} {
+				switch {
+				case l.ok:
+					nb = append(nb, l.nb)
+				case l.exists:
+					closed = append(closed, l.nb)
+				}
+			}
+			return nb, closed
+		}
+		b := NewGridBuilder(g, nodes, unknown)
+		for k := range n {
+			nb, closed := neighbours(k)
+			if len(nb) == 4 && b.EndPlainRow() {
+				continue
+			}
+			for _, v := range nb {
+				b.Add(v, -1)
+			}
+			for _, v := range closed[:len(closed)/2] {
+				b.Add(v, 0) // a stored zero couples nothing
+			}
+			b.Add(k, float64(len(nb))+1)
+			b.EndRow()
+		}
+		a := b.Matrix()
+		anchored := make([]bool, n)
+		for range 3 {
+			anchored[rng.IntN(n)] = true
+		}
+		want := make([]bool, n)
+		var queue []int
+		for k, ok := range anchored {
+			if ok {
+				want[k] = true
+				queue = append(queue, k)
+			}
+		}
+		for len(queue) > 0 {
+			k := queue[0]
+			queue = queue[1:]
+			nb, _ := neighbours(k)
+			for _, v := range nb {
+				if !want[v] {
+					want[v] = true
+					queue = append(queue, v)
+				}
+			}
+		}
+		if got := connectedTo(a, anchored); !slices.Equal(got, want) {
+			t.Fatalf("seed %d (links open with probability %.2f, %d plain rows): connectedTo differs from the search", seed, open, a.Plain())
+		}
 	}
 }
