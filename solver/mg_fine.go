@@ -252,13 +252,26 @@ func (f *fineLevel) initRows(j0, j1, c int) {
 			f.initRange(u0, u0+n, c)
 			continue
 		}
-		x := f.x[u0 : u0+n]
-		b := f.b[u0 : u0+n]
-		b = b[:len(x)]
-		clear(x)
-		for q := uint(int(f.meta[u0])^c) & 1; q < uint(len(x)); q += 2 {
-			x[q] = b[q] / 4
-		}
+		initPlain(f.x[u0:u0+n], f.b[u0:u0+n], (int(f.meta[u0])^c)&1)
+	}
+}
+
+// initPlain sets x = b/4 on every other unknown of a plain run from q0 (0 or 1) on and 0 on the
+// others, in one pass.
+func initPlain(x, b []float64, q0 int) {
+	if q0 == 1 && len(x) > 0 {
+		x[0] = 0
+	}
+	x, b = x[min(q0, len(x)):], b[min(q0, len(b)):]
+	b = b[:len(x)]
+	pairs := len(x) / 2
+	xp, bp := x[:2*pairs], b[:2*pairs]
+	for q := 0; q+1 < len(xp); q += 2 {
+		xp[q] = bp[q] / 4
+		xp[q+1] = 0
+	}
+	if len(x)%2 == 1 {
+		x[len(x)-1] = b[len(x)-1] / 4
 	}
 }
 
