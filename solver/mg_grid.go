@@ -139,10 +139,12 @@ func (lv *gridLevel) runBlock(blk int) {
 func (lv *gridLevel) initRow(j int) {
 	row := (j+1)*lv.sx + 1
 	x := lv.x[row : row+lv.nx]
-	clear(x)
 	if j&1 != 0 {
+		clear(x)
 		return
 	}
+	// An even row's nodes are all written below: the even ones first, then the odd ones from
+	// them.
 	b := lv.b[row : row+lv.nx]
 	inv := lv.invD[row : row+lv.nx]
 	b, inv = b[:len(x)], inv[:len(x)]
