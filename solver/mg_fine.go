@@ -264,11 +264,14 @@ func initPlain(x, b []float64, q0 int) {
 	}
 	x, b = x[min(q0, len(x)):], b[min(q0, len(b)):]
 	b = b[:len(x)]
-	pairs := len(x) / 2
-	xp, bp := x[:2*pairs], b[:2*pairs]
-	for q := 0; q+1 < len(xp); q += 2 {
-		xp[q] = bp[q] / 4
-		xp[q+1] = 0
+	if pairs := len(x) / 2; pairs > 0 {
+		xe, xo := x[:2*pairs-1], x[1:2*pairs] // xo[q] is x[q+1]
+		be := b[:len(xe)]
+		xo = xo[:len(xe)]
+		for q := uint(0); q < uint(len(xe)); q += 2 {
+			xe[q] = be[q] / 4
+			xo[q] = 0
+		}
 	}
 	if len(x)%2 == 1 {
 		x[len(x)-1] = b[len(x)-1] / 4
