@@ -4,6 +4,7 @@ import (
 	"context"
 	"fmt"
 	"math"
+	"slices"
 	"time"
 
 	"phipsi/bc"
@@ -339,16 +340,19 @@ func AssemblePhi(m *mesh.Mesh, s *bc.Set, circulation []float64, opt *PhiOptions
 		return nil, fmt.Errorf("solver: the φ problem has no unknowns")
 	}
 	sys.B = pages.Make[float64](nu)
-	inflow := make([]float64, nu)
+	// The inflow of each row with an inlet face, kept per range of rows (only the first column
+	// has any: a vector of them all would be 8 bytes an unknown of zeros).
+	nr := rowRanges(nu)
+	inflowParts := make([][]rowInflow, nr)
 	anchored := make([]bool, nu) // couples to a prescribed value
 	type side struct {
 		face, nb int
 		high     bool
 	}
 	cutRow, cutCol := CutLines(cuts, g)
-	// Each row writes its own entries of B, inflow and anchored only, so the rows can be built
-	// on several goroutines (buildRows).
-	a, err := buildRows(g, sys.Nodes, sys.Unknown, rowRanges(nu), func(bld *GridBuilder, _, row int) error {
+	// Each row writes its own entries of B and anchored and its range's inflow only, so the rows
+	// can be built on several goroutines (buildRows).
+	a, err := buildRows(g, sys.Nodes, sys.Unknown, nr, func(bld *GridBuilder, r, row int) error {
 		var partBuf [8]mesh.FacePart
 		var sideBuf [4]side
 		sides := sideBuf[:0]
@@ -383,6 +387,7 @@ func AssemblePhi(m *mesh.Mesh, s *bc.Set, circulation []float64, opt *PhiOptions
 			sides = append(sides, side{faces.NorthFace(k), k + g.NX, false})
 		}
 		diag := 0.0
+		inlet, inflow := false, 0.0
 		for _, sd := range sides {
 			for _, p := range faces.Parts(partBuf[:0], sd.face) {
 				mine, other := p.Low, p.High
@@ -397,7 +402,7 @@ func AssemblePhi(m *mesh.Mesh, s *bc.Set, circulation []float64, opt *PhiOptions
 					f := s.Speed * g.H * faces.Fraction(sd.face, p)
 					if o.Outer == nil {
 						sys.B[row] -= f
-						inflow[row] += f
+						inlet, inflow = true, inflow+f
 					}
 					continue
 				}
@@ -424,6 +429,9 @@ func AssemblePhi(m *mesh.Mesh, s *bc.Set, circulation []float64, opt *PhiOptions
 				sys.B[row] -= alpha * delta
 			}
 		}
+		if inlet {
+			inflowParts[r] = append(inflowParts[r], rowInflow{int32(row), inflow})
+		}
 		if !(diag > 0) {
 			return fmt.Errorf("solver: node (%d, %d): dual-cell piece %d has no open face", i, j, piece)
 		}
@@ -434,11 +442,12 @@ func AssemblePhi(m *mesh.Mesh, s *bc.Set, circulation []float64, opt *PhiOptions
 		return nil, err
 	}
 	sys.A = a
+	inflow := slices.Concat(inflowParts...) // in row order: the ranges are
 	if err := sys.isolate(anchored, inflow); err != nil {
 		return nil, err
 	}
-	for _, f := range inflow {
-		sys.Inflow += f
+	for _, in := range inflow {
+		sys.Inflow += in.f
 	}
 	sys.outer = o.Outer != nil
 	return sys, nil
@@ -488,24 +497,31 @@ func (sys *PhiSystem) wholeInterior(i, j int) bool {
 	return true
 }
 
+// rowInflow is the inflow through the inlet faces of one row (unknown) of the φ system.
+type rowInflow struct {
+	row int32
+	f   float64
+}
+
 // isolate finds the unknowns that no chain of open faces joins to a prescribed value and gives
-// them identity rows (φ = 0); it fails if inflow reaches any of them.
-func (sys *PhiSystem) isolate(anchored []bool, inflow []float64) error {
+// them identity rows (φ = 0); it fails if inflow (in row order) reaches any of them.
+func (sys *PhiSystem) isolate(anchored []bool, inflow []rowInflow) error {
 	a := sys.A
 	nu := a.Len()
 	reached := connectedTo(a, anchored)
 	var cbuf [5]int32
 	var vbuf [5]float64
-	lost := 0
-	for u, ok := range reached {
-		if ok {
-			continue
-		}
-		lost++
-		if inflow[u] != 0 {
-			k := int(sys.Nodes[u])
+	for _, in := range inflow {
+		if in.f != 0 && !reached[in.row] {
+			k := int(sys.Nodes[in.row])
 			g := sys.Mesh.Grid
 			return fmt.Errorf("solver: the inflow at (%g, %g) has no path through the fluid to the outlet", g.X(k%g.NX), g.Y(k/g.NX))
+		}
+	}
+	lost := 0
+	for _, ok := range reached {
+		if !ok {
+			lost++
 		}
 	}
 	sys.Isolated = lost

@@ -7,6 +7,7 @@ import (
 	"math"
 	"math/rand/v2"
 	"slices"
+	"strings"
 	"testing"
 
 	"gonum.org/v1/gonum/mat"
@@ -681,5 +682,19 @@ func TestConnectedTo(t *testing.T) {
 		if got := connectedTo(a, anchored); !slices.Equal(got, want) {
 			t.Fatalf("seed %d (links open with probability %.2f, %d plain rows): connectedTo differs from the search", seed, open, a.Plain())
 		}
+	}
+}
+
+// TestPhiBlockedInflow: a body across the whole channel leaves the inflow no path to the outlet,
+// which AssemblePhi must report (at the inlet's first node) instead of solving.
+func TestPhiBlockedInflow(t *testing.T) {
+	dam, err := mesh.NewPolygon([]mesh.Point{{X: 0.9, Y: -0.1}, {X: 1.1, Y: -0.1}, {X: 1.1, Y: 1.1}, {X: 0.9, Y: 1.1}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	m := phiMesh(t, 2, 0, 1, 0.05, mesh.Body{Name: "dam", Shape: dam})
+	_, err = AssemblePhi(m, phiBC(t, m, 1), nil, nil)
+	if want := "the inflow at (0, 0) has no path through the fluid to the outlet"; err == nil || !strings.Contains(err.Error(), want) {
+		t.Fatalf("err = %v, want one containing %q", err, want)
 	}
 }
