@@ -12,6 +12,7 @@ import (
 	"phipsi/cmd/internal/render"
 	"phipsi/cmd/internal/report"
 	"phipsi/cmd/internal/scenario"
+	"phipsi/internal/pages"
 	"phipsi/mesh"
 	"phipsi/solver"
 	"phipsi/solver/flow"
@@ -245,6 +246,9 @@ func studyGrids(ctx context.Context, plan *scenario.Plan, finest *solvedGrid, le
 			if prog.on {
 				fmt.Fprintf(prog.w, "grid %d of %d: spacing %.4g m, %d × %d nodes\n", lv+1, levels, p.Grid.H, p.Grid.NX, p.Grid.NY)
 			}
+			// The grid solved before this one is garbage by now but its numbers: collected,
+			// its pages serve this one.
+			pages.Collect()
 			var err error
 			if g, err = solveGrid(ctx, p, prog); err != nil {
 				return nil, fmt.Errorf("grid %d of %d (spacing %.4g m): %w", lv+1, levels, p.Grid.H, err)

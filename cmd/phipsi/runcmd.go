@@ -172,9 +172,10 @@ func compute(ctx context.Context, plan *scenario.Plan, o *runOptions, stderr io.
 	// heap reaches the estimate. Measured against GOGC = 25 (6 × 1 channel, medians of 3
 	// interleaved runs, page faults from /usr/bin/time): 1M cells 1.29 → 1.22 s, 49k → 39k
 	// faults, peak 142 → 159 MB; 4M cells 4.48 → 4.13 s, 164k → 130k faults, peak 511 → 527 MB.
-	// Between collections the limit is lifted to --max-memory (pages.Collect tells why: the
-	// scavenger would otherwise hand back what the next stage reuses). A GOGC or GOMEMLIMIT set
-	// in the environment wins.
+	// Between the solver stages' collections the limit is lifted to --max-memory (pages.Collect
+	// tells why: the scavenger would otherwise hand back what the next stage reuses), and set
+	// back to the estimate before the pictures (pages.Settle). A GOGC or GOMEMLIMIT set in the
+	// environment wins.
 	if os.Getenv("GOGC") == "" && os.Getenv("GOMEMLIMIT") == "" {
 		defer pages.SetBudget(plan.Memory, int64(o.maxMemory))()
 	}
@@ -244,6 +245,7 @@ func compute(ctx context.Context, plan *scenario.Plan, o *runOptions, stderr io.
 	if err := ctx.Err(); err != nil {
 		return nil, err
 	}
+	pages.Settle()
 	images, err := render.Render(res, phiSol.Phi, render.Options{Width: sc.Output.ImageWidth, Title: sc.Title, Images: sc.Output.Images})
 	if err != nil {
 		return nil, err

@@ -52,3 +52,17 @@ func Collect() {
 	runtime.GC()
 	debug.SetMemoryLimit(budget.ceiling)
 }
+
+// Settle runs a garbage collection and leaves the memory limit at the budget's limit (without a
+// budget it only collects). It is for the last stages of a run, which allocate little that
+// would reuse freed pages but make garbage (pictures, tables): under the lifted limit nothing
+// would collect it before the run ends (a 1M-cell run with its pictures peaked at 303 MB
+// instead of 193 MB).
+func Settle() {
+	budget.Lock()
+	defer budget.Unlock()
+	if budget.set {
+		debug.SetMemoryLimit(budget.limit)
+	}
+	runtime.GC()
+}

@@ -26,8 +26,8 @@ func TestMakeZeroed(t *testing.T) {
 }
 
 // TestBudget: under a budget the pacing is off and the limit is the ceiling, also after a
-// collection (which runs against the lower limit); restore brings back the previous settings,
-// and without a budget Collect only collects.
+// collection (which runs against the lower limit), until Settle leaves it at the budget's limit;
+// restore brings back the previous settings, and without a budget Collect only collects.
 func TestBudget(t *testing.T) {
 	prevGC := debug.SetGCPercent(100)
 	prevLimit := debug.SetMemoryLimit(math.MaxInt64)
@@ -49,6 +49,10 @@ func TestBudget(t *testing.T) {
 	}
 	if readGCs() == before {
 		t.Errorf("Collect did not collect")
+	}
+	Settle()
+	if got := debug.SetMemoryLimit(-1); got != 1<<30 {
+		t.Errorf("after Settle: limit %d, want the budget's limit %d", got, 1<<30)
 	}
 	restore()
 	if got := debug.SetMemoryLimit(-1); got != math.MaxInt64 {
