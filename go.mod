@@ -12,4 +12,4 @@ require (
 	gonum.org/v1/gonum v0.17.0
 )
 
-require golang.org/x/sys v0.50.0 // indirect
+require golang.org/x/sys v0.50.0

@@ -256,28 +256,6 @@ func (f *fineLevel) initRows(j0, j1, c int) {
 	}
 }
 
-// initPlain sets x = b/4 on every other unknown of a plain run from q0 (0 or 1) on and 0 on the
-// others, in one pass.
-func initPlain(x, b []float64, q0 int) {
-	if q0 == 1 && len(x) > 0 {
-		x[0] = 0
-	}
-	x, b = x[min(q0, len(x)):], b[min(q0, len(b)):]
-	b = b[:len(x)]
-	if pairs := len(x) / 2; pairs > 0 {
-		xe, xo := x[:2*pairs-1], x[1:2*pairs] // xo[q] is x[q+1]
-		be := b[:len(xe)]
-		xo = xo[:len(xe)]
-		for q := uint(0); q < uint(len(xe)); q += 2 {
-			xe[q] = be[q] / 4
-			xo[q] = 0
-		}
-	}
-	if len(x)%2 == 1 {
-		x[len(x)-1] = b[len(x)-1] / 4
-	}
-}
-
 // initRange sets x_u = b_u / A_uu on the unknowns of colour c in [lo, hi) and x_u = 0 on the
 // others: the first Gauss–Seidel step from x = 0.
 func (f *fineLevel) initRange(lo, hi, c int) {
@@ -305,19 +283,14 @@ func (f *fineLevel) smoothRows(j0, j1, c int) {
 			continue
 		}
 		xs, xw, xm, xe, xn := stencilSlices(f.x, u0, n, int(run.south), int(run.north))
-		b := f.b[u0 : u0+n]
-		xs, xw, xe, xn, b = xs[:len(xm)], xw[:len(xm)], xe[:len(xm)], xn[:len(xm)], b[:len(xm)]
 		// Colours alternate along the run.
-		for q := uint(int(f.meta[u0])^c) & 1; q < uint(len(xm)); q += 2 {
-			s := 0 - xs[q] - xw[q] + 4*xm[q] - xe[q] - xn[q]
-			xm[q] += (b[q] - s) / 4
-		}
+		smoothPlain(xm, xs, xw, xe, xn, f.b[u0:u0+n], (int(f.meta[u0])^c)&1)
 	}
 }
 
 // smoothRange updates the unknowns of colour c in [lo, hi) by x_u += (b_u − Σ_v A_uv x_v)/A_uu.
-// No two unknowns of one colour couple, so the order of the updates does not matter. The plain
-// rows' product is GridMatrix.productTo's, written out here for speed.
+// No two unknowns of one colour couple, so the order of the updates does not matter. Plain rows
+// take smoothPlain's update, written out here.
 func (f *fineLevel) smoothRange(lo, hi, c int) {
 	a := f.a
 	nx := f.nx
@@ -339,8 +312,7 @@ func (f *fineLevel) smoothRange(lo, hi, c int) {
 			continue
 		}
 		k := int(nodes[q])
-		s := 0 - xAll[unknown[k-nx]] - xAll[u-1] + 4*xAll[u] - xAll[u+1] - xAll[unknown[k+nx]]
-		x[q] += (b[q] - s) / 4
+		x[q] = (((b[q] + xAll[unknown[k-nx]]) + (xAll[u-1] + xAll[u+1])) + xAll[unknown[k+nx]]) * 0.25
 	}
 }
 
@@ -358,17 +330,11 @@ func (f *fineLevel) residualRow(j, skip int) {
 		k0 := int(f.nodes[u0]) + off // a plain run's nodes are consecutive
 		r := f.r[k0 : k0+n]
 		xs, xw, xm, xe, xn := stencilSlices(f.x, u0, n, int(run.south), int(run.north))
-		b := f.b[u0 : u0+n]
-		xs, xw, xm, xe, xn, b = xs[:len(r)], xw[:len(r)], xm[:len(r)], xe[:len(r)], xn[:len(r)], b[:len(r)]
-		for q := range r {
-			r[q] = b[q] - (0 - xs[q] - xw[q] + 4*xm[q] - xe[q] - xn[q])
+		zero := -1
+		if skip >= 0 {
+			zero = (int(f.meta[u0]) ^ skip) & 1
 		}
-		if skip < 0 {
-			continue
-		}
-		for q := uint(int(f.meta[u0])^skip) & 1; q < uint(len(r)); q += 2 {
-			r[q] = 0
-		}
+		residualPlain(r, xs, xw, xm, xe, xn, f.b[u0:u0+n], zero)
 	}
 }
 
