@@ -23,3 +23,27 @@ func smoothStepsAVX2(xm, xs, xn, b *float64, steps int)
 //
 //go:noescape
 func residualStepsAVX2(r, xm, xs, xn, b *float64, steps, odd int)
+
+// smoothStdStepsAVX2 does smoothSpanStd's steps from x[0] on, updating the first and third
+// node of each; b, m (the row below, m1) and p (the row above, p1) start at the same column.
+//
+//go:noescape
+func smoothStdStepsAVX2(x, b, m, p *float64, c *standardStencil, steps int)
+
+// residualStdStepsAVX2 does residualSpanStd's steps from r[0] on, x, b, m and p as for
+// smoothStdStepsAVX2.
+//
+//go:noescape
+func residualStdStepsAVX2(r, x, b, m, p *float64, c *standardStencil, steps int)
+
+// prolongStepsAVX2 does prolongStretch's pairs, four to a step: x from an even column on, r0
+// and r1 from its coarse column on.
+//
+//go:noescape
+func prolongStepsAVX2(x, r0, r1 *float64, steps int)
+
+// restrictStepsAVX2 does restrictRow's full weighting for coarse nodes 0 to 4·steps − 1, into
+// b, from the three fine rows m, c, p (each from padded column 0).
+//
+//go:noescape
+func restrictStepsAVX2(b, m, c, p *float64, steps int)

@@ -436,7 +436,14 @@ func prolongStretch(x []float64, i0 int, r0, r1 []float64) {
 	a0, b0 := r0[m0:m0+pairs+1], r1[m0:m0+pairs+1]
 	xs := x[q : q+2*pairs]
 	b0 = b0[:len(a0)]
-	for p := range pairs {
+	p0 := 0
+	if useAVX2 {
+		if steps := pairs / 4; steps > 0 {
+			prolongStepsAVX2(&xs[0], &a0[0], &b0[0], steps)
+			p0 = 4 * steps
+		}
+	}
+	for p := p0; p < pairs; p++ {
 		xs[2*p] += 0.5 * (a0[p] + b0[p])
 		xs[2*p+1] += 0.25 * ((a0[p] + a0[p+1]) + (b0[p] + b0[p+1]))
 	}

@@ -239,8 +239,21 @@ func smoothSpan(v *rowView, lo, hi, i0 int) {
 }
 
 // smoothSpanStd is smoothSpan on nodes with the level's standard stencil: the same sums with
-// the coefficients held in registers.
+// the coefficients held in registers (on amd64 with AVX2, four nodes to a step, two updated).
 func smoothSpanStd(v *rowView, c *standardStencil, lo, hi, i0 int) {
+	q := (i0 ^ lo) & 1
+	if useAVX2 {
+		if steps := (hi - lo - q) / 4; steps > 0 {
+			k := lo + q
+			smoothStdStepsAVX2(&v.x[k], &v.b[k], &v.m1[k], &v.p1[k], c, steps)
+			q += 4 * steps
+		}
+	}
+	smoothSpanStdGo(v, c, lo, hi, q)
+}
+
+// smoothSpanStdGo is smoothSpanStd in scalar code, from node lo + q on.
+func smoothSpanStdGo(v *rowView, c *standardStencil, lo, hi, q int) {
 	x, b := v.x[lo:hi], v.b[lo:hi]
 	m0, m1, m2 := v.m0[lo:hi], v.m1[lo:hi], v.m2[lo:hi]
 	c0, c2 := v.c0[lo:hi], v.c2[lo:hi]
@@ -249,7 +262,7 @@ func smoothSpanStd(v *rowView, c *standardStencil, lo, hi, i0 int) {
 	m0, m1, m2, c0, c2 = m0[:len(x)], m1[:len(x)], m2[:len(x)], c0[:len(x)], c2[:len(x)]
 	p0, p1, p2 = p0[:len(x)], p1[:len(x)], p2[:len(x)]
 	a0, a1, a2, a3, a5, a6, a7, a8, inv := c.a[0], c.a[1], c.a[2], c.a[3], c.a[5], c.a[6], c.a[7], c.a[8], c.inv
-	for i := uint(i0^lo) & 1; i < uint(len(x)); i += 2 {
+	for i := uint(q); i < uint(len(x)); i += 2 {
 		t := (a0*m0[i] + a1*m1[i] + a2*m2[i]) +
 			(a3*c0[i] + a5*c2[i]) +
 			(a6*p0[i] + a7*p1[i] + a8*p2[i])
@@ -292,8 +305,20 @@ func residualSpan(v *rowView, r []float64, lo, hi int) {
 	}
 }
 
-// residualSpanStd is residualSpan on nodes with the level's standard stencil.
+// residualSpanStd is residualSpan on nodes with the level's standard stencil (on amd64 with
+// AVX2, four nodes to a step).
 func residualSpanStd(v *rowView, c *standardStencil, r []float64, lo, hi int) {
+	if useAVX2 {
+		if steps := (hi - lo) / 4; steps > 0 {
+			residualStdStepsAVX2(&r[lo], &v.c1[lo], &v.b[lo], &v.m1[lo], &v.p1[lo], c, steps)
+			lo += 4 * steps
+		}
+	}
+	residualSpanStdGo(v, c, r, lo, hi)
+}
+
+// residualSpanStdGo is residualSpanStd in scalar code.
+func residualSpanStdGo(v *rowView, c *standardStencil, r []float64, lo, hi int) {
 	b, rr := v.b[lo:hi], r[lo:hi]
 	m0, m1, m2 := v.m0[lo:hi], v.m1[lo:hi], v.m2[lo:hi]
 	c0, c1, c2 := v.c0[lo:hi], v.c1[lo:hi], v.c2[lo:hi]
@@ -327,15 +352,25 @@ func (lv *gridLevel) restrictRow(j int) {
 		}
 	}
 	n := len(f[0][2])
+	i0 := 0
+	if useAVX2 {
+		// A step reads fine columns 2i to 2i+9 of its first node i.
+		if steps := min(len(b)/4, (sf-2)/8); steps > 0 {
+			restrictStepsAVX2(&b[0], &f[0][0][0], &f[1][0][0], &f[2][0][0], steps)
+			i0 = 4 * steps
+		}
+	}
 	m0, m1, m2 := f[0][0][:n], f[0][1][:n], f[0][2][:n]
 	c0, c1, c2 := f[1][0][:n], f[1][1][:n], f[1][2][:n]
 	p0, p1, p2 := f[2][0][:n], f[2][1][:n], f[2][2][:n]
-	for i := range b {
+	// The weights are those of two passes of ½, 1, ½: down each fine column, then along the row.
+	for i := i0; i < len(b); i++ {
 		k := 2 * i
 		if k >= n {
 			break
 		}
-		b[i] = c1[k] + 0.5*((c0[k]+c2[k])+(m1[k]+p1[k])) + 0.25*((m0[k]+m2[k])+(p0[k]+p2[k]))
+		v0, v1, v2 := c0[k]+0.5*(m0[k]+p0[k]), c1[k]+0.5*(m1[k]+p1[k]), c2[k]+0.5*(m2[k]+p2[k])
+		b[i] = v1 + 0.5*(v0+v2)
 	}
 	// The fine nodes with their own weights add what those weights differ by.
 	for jf := 2*j - 1; jf <= 2*j+1; jf++ {
