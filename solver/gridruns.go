@@ -74,10 +74,18 @@ func stencilSlices(x []float64, u0, n, south, north int) (xs, xw, xm, xe, xn []f
 
 // plainProduct writes (A x)_u for the plain run rows u0 ≤ u < u0+len(out) into out, summed in
 // column order as productTo sums a plain row (so bit for bit the same).
+// On amd64 with AVX2 it takes four rows a step, with the same operations.
 func plainProduct(out, x []float64, u0, south, north int) {
 	xs, xw, xm, xe, xn := stencilSlices(x, u0, len(out), south, north)
 	xs, xw, xm, xe, xn = xs[:len(out)], xw[:len(out)], xm[:len(out)], xe[:len(out)], xn[:len(out)]
-	for q := range out {
+	q0 := 0
+	if useAVX2 {
+		if steps := len(out) / 4; steps > 0 {
+			productStepsAVX2(&out[0], &xm[0], &xs[0], &xn[0], steps)
+			q0 = 4 * steps
+		}
+	}
+	for q := q0; q < len(out); q++ {
 		out[q] = 0 - xs[q] - xw[q] + 4*xm[q] - xe[q] - xn[q]
 	}
 }

@@ -47,3 +47,9 @@ func prolongStepsAVX2(x, r0, r1 *float64, steps int)
 //
 //go:noescape
 func restrictStepsAVX2(b, m, c, p *float64, steps int)
+
+// productStepsAVX2 does plainProduct's rows four to a step, out from out[0] and xm, xs, xn
+// from the same row on.
+//
+//go:noescape
+func productStepsAVX2(out, xm, xs, xn *float64, steps int)

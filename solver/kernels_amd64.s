@@ -332,3 +332,32 @@ restrictLoop:
 	JNZ  restrictLoop
 	VZEROUPPER
 	RET
+
+// func productStepsAVX2(out, xm, xs, xn *float64, steps int)
+//
+// out = 0 − xs − xw + 4·xm − xe − xn.
+TEXT ·productStepsAVX2(SB), NOSPLIT, $0-40
+	MOVQ out+0(FP), DI
+	MOVQ xm+8(FP), AX
+	MOVQ xs+16(FP), SI
+	MOVQ xn+24(FP), DX
+	MOVQ steps+32(FP), CX
+	VBROADCASTSD four<>(SB), Y13
+	VXORPD Y14, Y14, Y14
+
+productLoop:
+	VSUBPD  (SI), Y14, Y0
+	VSUBPD  -8(AX), Y0, Y0
+	VMULPD  (AX), Y13, Y1
+	VADDPD  Y1, Y0, Y0
+	VSUBPD  8(AX), Y0, Y0
+	VSUBPD  (DX), Y0, Y0
+	VMOVUPD Y0, (DI)
+	ADDQ $32, DI
+	ADDQ $32, AX
+	ADDQ $32, SI
+	ADDQ $32, DX
+	DECQ CX
+	JNZ  productLoop
+	VZEROUPPER
+	RET

@@ -15,5 +15,6 @@ func smoothStdStepsAVX2(x, b, m, p *float64, c *standardStencil, steps int) {
 func residualStdStepsAVX2(r, x, b, m, p *float64, c *standardStencil, steps int) {
 	panic("solver: no AVX2")
 }
-func prolongStepsAVX2(x, r0, r1 *float64, steps int)   { panic("solver: no AVX2") }
-func restrictStepsAVX2(b, m, c, p *float64, steps int) { panic("solver: no AVX2") }
+func prolongStepsAVX2(x, r0, r1 *float64, steps int)       { panic("solver: no AVX2") }
+func restrictStepsAVX2(b, m, c, p *float64, steps int)     { panic("solver: no AVX2") }
+func productStepsAVX2(out, xm, xs, xn *float64, steps int) { panic("solver: no AVX2") }

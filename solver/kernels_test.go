@@ -7,8 +7,8 @@ import (
 )
 
 // TestPlainKernelsAgree checks that the plain-run kernels give the same bits with and without
-// their vector steps, for runs of every length up to 41 and both colours, and that the scalar
-// loops do what their comments say.
+// their vector steps, for runs of every length up to 41 and both colours (the product: no
+// colour), and that the scalar loops do what their comments say.
 func TestPlainKernelsAgree(t *testing.T) {
 	rng := rand.New(rand.NewPCG(3, 5))
 	const nx = 64
@@ -38,6 +38,8 @@ func TestPlainKernelsAgree(t *testing.T) {
 			smoothPlain(xm, xs, xw, xe, xn, b[:n], c)
 		case "residual":
 			residualPlain(r, xs, xw, xm, xe, xn, b[:n], c)
+		case "product":
+			plainProduct(r, x, u0, -nx, nx)
 		}
 		return result{x, r}
 	}
@@ -51,12 +53,11 @@ func TestPlainKernelsAgree(t *testing.T) {
 	}
 	vector := useAVX2
 	defer func() { useAVX2 = vector }()
-	for _, kernel := range []string{"init", "smooth", "residual"} {
+	// The colours each kernel is run with: −1 for none (the residual: no zeroes).
+	colours := map[string][]int{"init": {0, 1}, "smooth": {0, 1}, "residual": {-1, 0, 1}, "product": {-1}}
+	for _, kernel := range []string{"init", "smooth", "residual", "product"} {
 		for n := range 42 {
-			for c := -1; c <= 1; c++ {
-				if c < 0 && kernel != "residual" {
-					continue
-				}
+			for _, c := range colours[kernel] {
 				useAVX2 = false
 				want := run(kernel, n, c)
 				useAVX2 = vector
@@ -80,6 +81,11 @@ func TestPlainKernelsAgree(t *testing.T) {
 						wantX = x0[u]
 						if (q-c)%2 == 0 {
 							wantX = (b[q] + x0[u-1] + x0[u+1] + x0[u-nx] + x0[u+nx]) / 4
+						}
+					case kernel == "product":
+						wantX, wantR = x0[u], ax
+						if d := math.Abs(want.r[q] - wantR); d > 1e-14*(1+math.Abs(wantR)) {
+							t.Fatalf("product, n = %d: (A x)[%d] = %v, want %v", n, q, want.r[q], wantR)
 						}
 					default:
 						wantX = x0[u]

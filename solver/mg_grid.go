@@ -435,7 +435,14 @@ func prolongPairs(x, r0, r1 []float64) {
 	rb := r1[min(1, len(r1)):]
 	r0, r1 = r0[:len(ra)], r1[:len(ra)]
 	rb = rb[:len(ra)]
-	for m := range ra {
+	m0 := 0
+	if useAVX2 {
+		if steps := min(len(ra), len(xo)/2) / 4; steps > 0 {
+			prolongStepsAVX2(&x[0], &r0[0], &r1[0], steps)
+			m0 = 4 * steps
+		}
+	}
+	for m := m0; m < len(ra); m++ {
 		i := 2 * m
 		if i >= len(xo) {
 			break
