@@ -2,8 +2,8 @@
 
 package solver
 
-// useAVX2 is false off amd64: the plain-run kernels are the scalar loops.
-const useAVX2 = false
+// useAVX2 is false off amd64: the kernels are the scalar loops.
+var useAVX2 = false
 
 func initStepsAVX2(x, b *float64, steps int)                      { panic("solver: no AVX2") }
 func smoothStepsAVX2(xm, xs, xn, b *float64, steps int)           { panic("solver: no AVX2") }
