@@ -523,8 +523,6 @@ func (f *fineLevel) coarsen(mg *Multigrid) (*gridLevel, error) {
 	if err := task.run(mg); err != nil {
 		return nil, err
 	}
-	if co.tr != nil {
-		co.tr.near = nil // set-up only
-	}
+	co.tr.dropSetUp()
 	return co, nil
 }

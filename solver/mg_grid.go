@@ -507,9 +507,7 @@ func (lv *gridLevel) coarsen(mg *Multigrid) (*gridLevel, error) {
 	if err := task.run(mg); err != nil {
 		return nil, err
 	}
-	if co.tr != nil {
-		co.tr.near = nil // set-up only
-	}
+	co.tr.dropSetUp()
 	return co, nil
 }
 

@@ -36,6 +36,10 @@ type transfer struct {
 	rowStart []int32   // the special nodes of row j are list[rowStart[j]:rowStart[j+1]]
 	list     []special // by row, then column
 	near     []uint64  // bit k: node k or one of its eight neighbours is special (set-up only)
+	// bit k of self: node k is special, list[rank[k>>6] + (the bits below k in its word)] (set-up
+	// only: weights searches row j once they are dropped).
+	self []uint64
+	rank []int32
 }
 
 // special is a node with its own weights: w[b][a] on coarse node (i>>1 + a, j>>1 + b).
@@ -69,8 +73,15 @@ func (t *transfer) row(j int) []special {
 
 // weights returns the weights of node (i, j).
 func (t *transfer) weights(i, j int) [2][2]float64 {
-	row := t.row(j)
-	if len(row) > 0 {
+	if t != nil && t.self != nil {
+		k := j*t.nx + i
+		w, bit := t.self[k>>6], uint64(1)<<(k&63)
+		if w&bit == 0 {
+			return bilinear(i, j)
+		}
+		return t.list[int(t.rank[k>>6])+bits.OnesCount64(w&(bit-1))].w
+	}
+	if row := t.row(j); len(row) > 0 {
 		if q, ok := slices.BinarySearchFunc(row, int32(i), func(s special, i int32) int { return cmp.Compare(s.i, i) }); ok {
 			return row[q].w
 		}
@@ -148,7 +159,8 @@ func newTransfer(nx, ny int, irregular func(visit func(i, j int)), row func(i, j
 	if len(own) == 0 {
 		return nil
 	}
-	t := &transfer{nx: nx, ny: ny, rowStart: make([]int32, ny+1), near: make([]uint64, words)}
+	t := &transfer{nx: nx, ny: ny, rowStart: make([]int32, ny+1), near: make([]uint64, words),
+		self: make([]uint64, words), rank: make([]int32, words)}
 	keys := make([]int, 0, len(own))
 	for k := range own {
 		keys = append(keys, k)
@@ -159,6 +171,7 @@ func newTransfer(nx, ny int, irregular func(visit func(i, j int)), row func(i, j
 		i, j := k%nx, k/nx
 		t.list[q] = special{int32(i), own[k]}
 		t.rowStart[j+1]++
+		t.self[k>>6] |= 1 << (k & 63)
 		for y := max(0, j-1); y <= min(ny-1, j+1); y++ {
 			for x := max(0, i-1); x <= min(nx-1, i+1); x++ {
 				n := y*nx + x
@@ -169,7 +182,17 @@ func newTransfer(nx, ny int, irregular func(visit func(i, j int)), row func(i, j
 	for j := range ny {
 		t.rowStart[j+1] += t.rowStart[j]
 	}
+	for w := 1; w < words; w++ {
+		t.rank[w] = t.rank[w-1] + int32(bits.OnesCount64(t.self[w-1]))
+	}
 	return t
+}
+
+// dropSetUp drops what only the set-up uses.
+func (t *transfer) dropSetUp() {
+	if t != nil {
+		t.near, t.self, t.rank = nil, nil, nil
+	}
 }
 
 // nearlyBilinear reports whether w is node (i, j)'s bilinear weights up to rounding (on a coarse
