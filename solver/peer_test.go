@@ -41,8 +41,8 @@ import (
 //
 // It checks that phipsi's solutions agree with SciPy's and that the solver-level work of a
 // whole run of a one-body channel of 1M cells takes at most 1/50 of the time SciPy's direct
-// solve of a 1M-unknown five-point Laplacian takes. The bandwidth ratios are reported, not
-// checked.
+// solve of a 1M-unknown five-point Laplacian takes. The bandwidth ratios are reported beside
+// their target, not checked.
 
 var (
 	peerRuns   = flag.Int("peer.runs", 3, "timed repetitions of each measurement (the median is reported)")
@@ -63,6 +63,9 @@ const (
 	// the speed work (a whole run of a 1M-cell channel at least 50 times faster than a direct
 	// solve of a 1M-unknown Laplacian).
 	peerMinSpeedup = 50
+	// peerMaxBoundRatio is the target for each solve's time ÷ the time its bytes take at the
+	// triad bandwidth; reported beside the ratios, not checked (it moves with the host's load).
+	peerMaxBoundRatio = 1.5
 	// peerTriadReps is the number of timed triads on each side of the solves.
 	peerTriadReps = 21
 	// peerLaplacianSide is the number of unknowns per side of the Laplacian: 10⁶ unknowns.
@@ -759,10 +762,10 @@ func TestPeerScipy(t *testing.T) {
 			t.Logf("φ: %d CG iterations, %.2f GB by the model, bound %.3f s; solve %.3f s median of %v (setup %.3f s): %.2f × the bound",
 				phiB.iters, phiB.bytes/1e9, phiB.bytes/triad, peerMedian(phiSolve), peerRound(phiSolve), peerSeconds(phiSetup), peerMedian(phiRatio))
 			table.add("channel "+size.label+", phipsi solver-level run", "%.3f s (median of %d: %v), %d cells", peerSeconds(total), runs, peerRoundD(total), r.cells)
-			table.add("channel "+size.label+", ψ solves", "%.3f s (setup %.3f s), %d iterations, %.2f GB, bound %.3f s, %.2f × bound",
-				peerMedian(psiSolve), peerSeconds(psiSetup), psiB.iters, psiB.bytes/1e9, psiB.bytes/triad, peerMedian(psiRatio))
-			table.add("channel "+size.label+", φ solve", "%.3f s (setup %.3f s), %d iterations, %.2f GB, bound %.3f s, %.2f × bound",
-				peerMedian(phiSolve), peerSeconds(phiSetup), phiB.iters, phiB.bytes/1e9, phiB.bytes/triad, peerMedian(phiRatio))
+			table.add("channel "+size.label+", ψ solves", "%.3f s (setup %.3f s), %d iterations, %.2f GB, bound %.3f s, %.2f × bound (target <= %g)",
+				peerMedian(psiSolve), peerSeconds(psiSetup), psiB.iters, psiB.bytes/1e9, psiB.bytes/triad, peerMedian(psiRatio), peerMaxBoundRatio)
+			table.add("channel "+size.label+", φ solve", "%.3f s (setup %.3f s), %d iterations, %.2f GB, bound %.3f s, %.2f × bound (target <= %g)",
+				peerMedian(phiSolve), peerSeconds(phiSetup), phiB.iters, phiB.bytes/1e9, phiB.bytes/triad, peerMedian(phiRatio), peerMaxBoundRatio)
 		})
 	}
 
