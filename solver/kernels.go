@@ -4,7 +4,10 @@ package solver
 // −1, whose neighbours lie at fixed offsets): scalar loops here, and on amd64 with AVX2 the
 // same arithmetic four nodes at a time (kernels_amd64.s), in the same order, so that both give
 // the same bits. A vector step covers four consecutive nodes, two of each colour; the scalar
-// loops do the nodes before the first step and after the last.
+// loops do the nodes before the first step and after the last. The other kernels with vector
+// steps call them where they stand: plainProduct (gridruns.go), prolongStretch (mg_fine.go),
+// and the coarse levels' smoothSpanStd, residualSpanStd, restrictRow and prolongPairs
+// (mg_grid.go).
 
 // initPlain sets x = b/4 on every other unknown of a plain run from q0 (0 or 1) on and 0 on the
 // others, in one pass.
